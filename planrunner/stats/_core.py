@@ -1,4 +1,4 @@
-"""Shared plumbing of the statistics package: input checks, stable moments, result helpers.
+"""Shared plumbing of the statistics package: input checks, stable moments, result utilities.
 
 Conventions used by every public function in :mod:`planrunner.stats`:
 
@@ -11,7 +11,8 @@ Conventions used by every public function in :mod:`planrunner.stats`:
   infinite values, batch shapes that do not broadcast) raises :class:`InputError`.
 * A statistic that cannot be computed for some batch elements (for example zero variance in
   every group) is *not* a silent NaN: the result's ``computable`` mask is False there, the
-  numeric fields hold NaN there only, and ``reason`` says why in one plain sentence.
+  affected numeric fields hold NaN there only, and ``reason`` (a batch-shaped array of
+  strings, empty where computable) says why in one plain sentence.
 
 This module imports numpy only; the package never imports pandas, pydantic, yaml or the rest
 of planrunner.
@@ -28,9 +29,12 @@ __all__ = [
     "DegenerateError",
     "DomainError",
     "InputError",
+    "Interval",
     "Moments",
     "StatsError",
     "as_groups",
+    "concat_groups",
+    "flag_cases",
     "group_moments",
     "scalarize",
 ]
@@ -64,7 +68,10 @@ def as_groups(
         raise InputError(f"{name} needs at least {min_groups} groups; got {len(groups)}")
     arrays = []
     for i, g in enumerate(groups):
-        a = np.asarray(g, dtype=np.float64)
+        try:
+            a = np.asarray(g, dtype=np.float64)
+        except (TypeError, ValueError):
+            raise InputError(f"group {i} is not an array of numbers") from None
         if a.ndim == 0:
             raise InputError(f"group {i} is a single number; pass an array of observations")
         if a.shape[-1] < min_n:
@@ -88,36 +95,110 @@ class Moments:
     """Per-group sample sizes, means and centred sums of squares.
 
     ``n`` has shape ``(k,)``; ``mean``, ``ss`` and ``var`` have shape ``(..., k)``.
+
+    ``pivot`` (batch shape) and ``centred_mean`` (``(..., k)``) carry the group means as
+    deviations from one common pivot, ``mean = pivot + centred_mean``. Differences between
+    group means should be taken from ``centred_mean``: it keeps the digits that adding the
+    pivot back would round away (data with many constant leading digits).
     """
 
     n: np.ndarray
     mean: np.ndarray
     ss: np.ndarray
+    pivot: np.ndarray | None = None
+    centred_mean: np.ndarray | None = None
 
     @property
     def var(self) -> np.ndarray:
-        """Unbiased variances ``ss / (n - 1)`` (inf-free: groups of one give NaN-free 0/0 guards)."""
+        """Unbiased variances ``ss / (n - 1)``; NaN (without a warning) for groups of one value."""
         with np.errstate(invalid="ignore", divide="ignore"):
             return self.ss / (self.n - 1)
 
+    def deviations(self) -> tuple[np.ndarray, np.ndarray]:
+        """Return ``(pivot, centred_mean)``, falling back to pivot 0 when not recorded."""
+        if self.pivot is None or self.centred_mean is None:
+            return np.zeros(self.mean.shape[:-1]), self.mean
+        return self.pivot, self.centred_mean
 
-def _centred(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    # Two-pass with the Bjorck/Chan-Golub-LeVeque correction: mean of deviations from a pivot,
-    # then the centred sum of squares with the rounding-error correction term (sum d)^2 / n.
-    pivot = a[..., :1]
-    d = a - pivot
+
+def _centred(a: np.ndarray, pivot: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Return (first value, mean of deviations from it, centred sum of squares) of one group.
+
+    Two passes with the correction term of Chan, Golub & LeVeque (1983), The American
+    Statistician 37, 242-247: ss = sum(e^2) - (sum e)^2 / n with e the deviations from the
+    first-pass mean, computed on deviations from the group's first value so that constant
+    leading digits cancel exactly before any sum is formed.
+    """
+    first = a[..., 0]
+    d = a - first[..., None]
     n = a.shape[-1]
-    mean_d = d.mean(axis=-1, keepdims=True)
-    e = d - mean_d
+    mean_d = d.mean(axis=-1)
+    e = d - mean_d[..., None]
     ss = (e * e).sum(axis=-1) - e.sum(axis=-1) ** 2 / n
-    return (pivot + mean_d)[..., 0], np.maximum(ss, 0.0)
+    # A group with zero range has ss exactly 0 (rounding in the mean must not make it 1e-34).
+    constant = np.all(d == 0.0, axis=-1)
+    ss = np.where(constant, 0.0, np.maximum(ss, 0.0))
+    mean_d = np.where(constant, 0.0, mean_d)
+    # Mean relative to the common pivot: (first - pivot) is one rounding, then the small part.
+    return first, (first - pivot) + mean_d, ss
 
 
 def group_moments(groups: Sequence[np.ndarray]) -> Moments:
-    """Stable per-group moments of arrays already passed through :func:`as_groups`."""
+    """Stable per-group moments of arrays already passed through :func:`as_groups`.
+
+    The common pivot is the first value of the first group (per batch element), so the
+    centred means are unchanged by adding a constant to every value.
+    """
     n = np.array([g.shape[-1] for g in groups], dtype=np.float64)
-    means, sss = zip(*(_centred(g) for g in groups))
-    return Moments(n=n, mean=np.stack(means, axis=-1), ss=np.stack(sss, axis=-1))
+    pivot = np.asarray(groups[0][..., 0], dtype=np.float64)
+    parts = [_centred(g, pivot) for g in groups]
+    centred = np.stack([p[1] for p in parts], axis=-1)
+    ss = np.stack([p[2] for p in parts], axis=-1)
+    mean = pivot[..., None] + centred
+    return Moments(n=n, mean=mean, ss=ss, pivot=pivot, centred_mean=centred)
+
+
+def concat_groups(groups: Sequence[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """Concatenate groups along the last axis; return the values and the group boundaries.
+
+    ``bounds`` has length k + 1: group i occupies ``values[..., bounds[i]:bounds[i + 1]]``.
+    """
+    sizes = [g.shape[-1] for g in groups]
+    bounds = np.concatenate([[0], np.cumsum(sizes)]).astype(np.intp)
+    return np.concatenate(list(groups), axis=-1), bounds
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Interval:
+    """A confidence interval ``(low, high)``; each bound has the batch shape of its result."""
+
+    low: np.ndarray
+    high: np.ndarray
+
+    def __iter__(self):
+        yield self.low
+        yield self.high
+
+
+def flag_cases(
+    batch: tuple[int, ...], *cases: tuple[np.ndarray | bool, str]
+) -> tuple[np.ndarray, np.ndarray]:
+    """Build the ``computable`` mask and ``reason`` strings from degenerate-case conditions.
+
+    Each case is ``(condition, sentence)``; ``condition`` broadcasts to ``batch`` and is True
+    where the statistic cannot be computed. The first matching case gives the reason. Returns
+    ``(computable, reason)`` as arrays of the batch shape (``reason`` is ``""`` where
+    computable).
+    """
+    width = max([1] + [len(msg) for _, msg in cases])
+    reason = np.full(batch, "", dtype=f"<U{width}")
+    bad = np.zeros(batch, dtype=bool)
+    for cond, msg in cases:
+        c = np.broadcast_to(np.asarray(cond, dtype=bool), batch)
+        new = c & ~bad
+        reason[new] = msg
+        bad |= c
+    return ~bad, reason
 
 
 def scalarize(x: np.ndarray) -> np.ndarray:
