@@ -1,0 +1,225 @@
+"""Command line: a thin typer layer over the Python API.
+
+Each command parses its arguments, calls the API, prints, and maps the outcome to an exit code.
+Every :class:`~planrunner.errors.PlanrunnerError` goes through :func:`_handled`, the one place
+that turns errors into messages and exit codes; anything else is reported as an internal error
+(exit 1) without a traceback, because tracebacks and their local variables may hold study data.
+
+Only light modules are imported here (typer, and for the plan commands pydantic and PyYAML), so
+``planrunner validate`` starts fast; numerical libraries are imported by the commands that
+compute.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import tempfile
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from ._version import __version__
+from .errors import PlanError, PlanrunnerError
+
+app = typer.Typer(
+    name="planrunner",
+    help="Pre-specified comparisons of group means: validate a plan, rehearse it, run it, and "
+    "leave an audit trail.",
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+    pretty_exceptions_show_locals=False,
+)
+
+#: Where `planrunner schema` writes by default (relative to the working folder).
+DEFAULT_SCHEMA_PATH = Path("schemas") / "plan.schema.json"
+#: Where `planrunner new` writes by default.
+DEFAULT_NEW_PATH = Path("plan.yaml")
+
+
+def _err(text: str) -> None:
+    typer.echo(text, err=True)
+
+
+@contextmanager
+def _handled() -> Iterator[None]:
+    """The one error handler: PlanrunnerError -> its exit code; anything else -> exit 1."""
+    try:
+        yield
+    except typer.Exit:
+        raise
+    except PlanrunnerError as exc:
+        _report(exc)
+        raise typer.Exit(exc.exit_code) from None
+    except KeyboardInterrupt:
+        _err("error: interrupted")
+        raise typer.Exit(130) from None
+    except Exception as exc:  # noqa: BLE001 - the last line of defence, no traceback
+        _err(f"internal error: {type(exc).__name__}: {exc}")
+        raise typer.Exit(1) from None
+
+
+def _report(exc: PlanrunnerError) -> None:
+    for problem in exc.problems:
+        _err(problem)
+    _err(f"error: {exc.message}")
+
+
+def _version_callback(value: bool) -> None:
+    if value:
+        typer.echo(f"planrunner {__version__}")
+        raise typer.Exit(0)
+
+
+@app.callback()
+def _root(
+    version: Annotated[
+        Optional[bool],
+        typer.Option("--version", help="Show the version and exit.", is_eager=True,
+                     callback=_version_callback),
+    ] = None,
+) -> None:
+    """Pre-specified comparisons of group means."""
+
+
+# ---------------------------------------------------------------------------------------------
+# plan commands
+
+
+@app.command()
+def validate(
+    plans: Annotated[list[Path], typer.Argument(help="Plan files to check.", metavar="PLAN...")],
+    quiet: Annotated[
+        bool, typer.Option("--quiet", "-q", help="Print only problems and warnings.")
+    ] = False,
+) -> None:
+    """Check plan files; print fingerprints, warnings and the decision tree of each valid one.
+
+    Exit 0 when every plan is valid, 2 otherwise.
+    """
+    from .plan.describe import describe_plan, render_steps
+    from .plan.load import validate_plan
+
+    failed = 0
+    with _handled():
+        for i, path in enumerate(plans):
+            try:
+                loaded = validate_plan(path)
+            except PlanError as exc:  # report it and go on with the next file
+                _report(exc)
+                failed += 1
+                continue
+            plan = loaded.model
+            for warning in loaded.warnings:
+                _err(f"warning: {warning}")
+            if quiet:
+                continue
+            if i:
+                typer.echo("")
+            typer.echo(f"{path}: valid plan '{plan.id}', revision {plan.revision}")
+            typer.echo(f"  plan fingerprint:  sha256:{loaded.fingerprints.plan}")
+            typer.echo(f"  file fingerprint:  sha256:{loaded.fingerprints.raw}")
+            typer.echo(f"  warnings:          {len(loaded.warnings)}")
+            typer.echo("  decision tree:")
+            typer.echo(render_steps(describe_plan(plan), indent="    "))
+    if failed:
+        _err(f"{failed} of {len(plans)} plan{'s' if len(plans) != 1 else ''} invalid")
+        raise typer.Exit(2)
+
+
+@app.command()
+def schema(
+    out: Annotated[
+        Path, typer.Option("--out", "-o", help="File to write; '-' prints to standard output.")
+    ] = DEFAULT_SCHEMA_PATH,
+) -> None:
+    """Write the JSON schema of the plan format (for editor completion and checks)."""
+    from .plan.model import plan_json_schema_text
+
+    with _handled():
+        text = plan_json_schema_text()
+        if str(out) == "-":
+            typer.echo(text, nl=False)
+            return
+        _write_text(out, text, replace=True)
+        typer.echo(f"wrote {out}")
+
+
+@app.command()
+def new(
+    path: Annotated[
+        Path, typer.Argument(help="Where to write the starter plan.")
+    ] = DEFAULT_NEW_PATH,
+    force: Annotated[bool, typer.Option("--force", help="Replace an existing file.")] = False,
+) -> None:
+    """Write a commented starter plan: Welch's ANOVA with Games-Howell, no variance gate."""
+    from .plan.load import load_plan_bytes
+    from .plan.model import STARTER_PLAN
+
+    with _handled():
+        if path.exists() and not force:
+            raise PlanError(
+                f"{path} already exists; use --force to replace it",
+                problems=[],
+            )
+        load_plan_bytes(STARTER_PLAN.encode("utf-8"), path=path)  # never write an invalid plan
+        _write_text(path, STARTER_PLAN, replace=force)
+        typer.echo(f"wrote {path}; edit it, then run: planrunner validate {path}")
+
+
+# ---------------------------------------------------------------------------------------------
+# Commands still to come, each a thin layer over its API function:
+#   run PLAN [--data FILE] [--out DIR]   -> planrunner.run_plan        (engine/, report/)
+#   rehearse PLAN                         -> planrunner.rehearse_plan   (engine/rehearse.py)
+#   lock PLAN / verify RUN_DIR            -> audit/
+#   report RUN_DIR                        -> report/
+# They are added together with the code they call; until then typer reports them as unknown.
+
+
+def _write_text(path: Path, text: str, *, replace: bool) -> None:
+    """Write under a temporary name and rename into place; no half-written files."""
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    except OSError as exc:
+        raise PlanError(f"cannot write {path}: {exc.strerror or exc}", problems=[]) from None
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
+            handle.write(text)
+        if replace:
+            os.replace(tmp, path)
+        else:
+            _place_without_replacing(tmp, path)
+    except FileExistsError:
+        Path(tmp).unlink(missing_ok=True)
+        raise PlanError(f"{path} already exists; use --force to replace it", problems=[]) from None
+    except OSError as exc:
+        Path(tmp).unlink(missing_ok=True)
+        raise PlanError(f"cannot write {path}: {exc.strerror or exc}", problems=[]) from None
+
+
+def _place_without_replacing(tmp: str, path: Path) -> None:
+    # a hard link fails if the target appeared meanwhile: never overwrite without --force
+    try:
+        os.link(tmp, path)
+    except FileExistsError:
+        raise
+    except OSError:  # no hard links on this file system
+        if path.exists():
+            raise FileExistsError(str(path)) from None
+        os.replace(tmp, path)
+        return
+    os.unlink(tmp)
+
+
+def main(argv: list[str] | None = None) -> None:
+    """Console-script entry point (``planrunner = "planrunner.cli:main"``)."""
+    args = sys.argv[1:] if argv is None else argv
+    app(args=args, prog_name="planrunner")
+
+
+__all__ = ["app", "main"]
