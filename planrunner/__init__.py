@@ -20,13 +20,19 @@ __all__ = sorted(
         "PlanrunnerError",
         "__version__",
         "load_plan",
+        "lock_plan",
+        "run_plan",
         "validate_plan",
+        "verify_run",
     ]
 )
 
 _LAZY = {
     "load_plan": ("planrunner.plan.load", "load_plan"),
     "validate_plan": ("planrunner.plan.load", "validate_plan"),
+    "run_plan": ("planrunner.api", "run_plan"),
+    "lock_plan": ("planrunner.api", "lock_plan"),
+    "verify_run": ("planrunner.api", "verify_run"),
 }
 
 
@@ -46,4 +52,5 @@ def __dir__() -> list[str]:
 
 
 if TYPE_CHECKING:  # pragma: no cover
+    from .api import lock_plan, run_plan, verify_run
     from .plan.load import load_plan, validate_plan

@@ -49,6 +49,10 @@ RUN_FILES: frozenset[str] = frozenset(
 #: the middle of being written by its owner; older ones count as left behind by a crash.
 _UNREADABLE_LOCK_GRACE = 10.0
 
+#: Sub-folders a run may write into RUN_DIR (``input/``: the archived plan and data with their
+#: manifest, written by ``run --archive``). They are replaced with the folder like the files.
+RUN_SUBFOLDERS: frozenset[str] = frozenset({"input"})
+
 _umask_cache: int | None = None
 
 
@@ -317,7 +321,10 @@ class RunFolder:
         foreign = sorted(
             entry.name + ("/" if entry.is_dir() else "")
             for entry in os.scandir(final)
-            if entry.name not in allowed or not entry.is_file(follow_symlinks=False)
+            if not (
+                (entry.name in allowed and entry.is_file(follow_symlinks=False))
+                or (entry.name in RUN_SUBFOLDERS and entry.is_dir(follow_symlinks=False))
+            )
         )
         if foreign:
             shown = ", ".join(foreign[:5]) + (", ..." if len(foreign) > 5 else "")

@@ -172,12 +172,94 @@ def new(
 
 
 # ---------------------------------------------------------------------------------------------
-# Commands still to come, each a thin layer over its API function:
-#   run PLAN [--data FILE] [--out DIR]   -> planrunner.run_plan        (engine/, report/)
-#   rehearse PLAN                         -> planrunner.rehearse_plan   (engine/rehearse.py)
-#   lock PLAN / verify RUN_DIR            -> audit/
-#   report RUN_DIR                        -> report/
-# They are added together with the code they call; until then typer reports them as unknown.
+# run commands (thin layers over planrunner.api)
+
+
+@app.command()
+def run(
+    plan: Annotated[Path, typer.Argument(help="The plan file to run.", metavar="PLAN")],
+    data: Annotated[
+        Optional[Path],
+        typer.Option("--data", help="Run on this data file instead of the plan's data.file "
+                     "(another batch of data)."),
+    ] = None,
+    out: Annotated[
+        Optional[Path],
+        typer.Option("--out", help="Run folder to write (default: reports/<plan id>)."),
+    ] = None,
+    operator: Annotated[
+        Optional[str],
+        typer.Option("--operator", help="Who runs the plan (default: PLANRUNNER_OPERATOR or "
+                     "the login name)."),
+    ] = None,
+    deviation: Annotated[
+        Optional[str],
+        typer.Option("--deviation", help="Declare, in one line, why the plan differs from "
+                     "its lock; the reason is recorded in the decision log."),
+    ] = None,
+    archive: Annotated[
+        bool,
+        typer.Option("--archive", help="Copy the plan and data into the run folder with a "
+                     "checksum manifest."),
+    ] = False,
+) -> None:
+    """Run a plan on its data; write results.json, decisions.jsonl and the resolved plan.
+
+    Exit 0 when the plan ran to its end, 3 when the data were rejected, 4 when the plan
+    stopped itself by one of its own rules, 5 when it differs from its lock.
+    """
+    from .api import run_plan
+
+    with _handled():
+        outcome = run_plan(plan, data=data, out=out, operator=operator, deviation=deviation,
+                           archive=archive, command=["planrunner", *sys.argv[1:]])
+        typer.echo(outcome.summary())
+    raise typer.Exit(outcome.exit_code)
+
+
+@app.command()
+def lock(
+    plan: Annotated[Path, typer.Argument(help="The plan file to lock.", metavar="PLAN")],
+    replace: Annotated[
+        bool, typer.Option("--replace", help="Replace an existing lock of a changed plan.")
+    ] = False,
+) -> None:
+    """Write <plan>.lock.json beside the plan: its fingerprints, the time and the git commit."""
+    from .api import lock_plan
+
+    with _handled():
+        outcome = lock_plan(plan, replace=replace)
+        typer.echo(outcome.summary())
+    raise typer.Exit(outcome.exit_code)
+
+
+@app.command()
+def verify(
+    run_dir: Annotated[Path, typer.Argument(help="The run folder to check.", metavar="RUN_DIR")],
+    rerun: Annotated[
+        bool, typer.Option("--rerun/--no-rerun", help="Rerun the plan and compare results.")
+    ] = True,
+    expected_head: Annotated[
+        Optional[str],
+        typer.Option("--expected-head", help="The decision log's final chain value, kept "
+                     "elsewhere when the run was made."),
+    ] = None,
+) -> None:
+    """Check a run folder: the log's hash chain, results.json, and a byte-for-byte rerun.
+
+    Exit 0 when every check holds, 1 when a problem was found, 2 on misuse.
+    """
+    from .api import verify_run
+
+    with _handled():
+        outcome = verify_run(run_dir, rerun=rerun, expected_head=expected_head)
+        typer.echo(outcome.summary())
+    raise typer.Exit(outcome.exit_code)
+
+
+# Still to come, each a thin layer over its API function:
+#   rehearse PLAN   -> planrunner.rehearse_plan
+#   report RUN_DIR  -> planrunner.report
 
 
 def _write_text(path: Path, text: str, *, replace: bool) -> None:

@@ -401,6 +401,19 @@ def test_archive_copies_inputs_with_a_checksum_manifest(tmp_path):
     assert by_role["plan"]["sha256"] == sha256(plan)
 
 
+def test_a_second_archived_run_replaces_the_first(tmp_path):
+    # input/ is part of what a run writes, so a later run into the same folder replaces it
+    plan = write_study(tmp_path / "study")
+    run_plan(plan, out=tmp_path / "run", archive=True)
+    first = (tmp_path / "run" / "results.json").read_bytes()
+    run_plan(plan, out=tmp_path / "run", archive=True)
+    assert (tmp_path / "run" / "results.json").read_bytes() == first
+    assert (tmp_path / "run" / api.ARCHIVE_DIR / "manifest.json").is_file()
+    run_plan(plan, out=tmp_path / "run")  # without --archive the old input/ goes too
+    assert not (tmp_path / "run" / api.ARCHIVE_DIR).exists()
+    assert verify_run(tmp_path / "run").exit_code == 0
+
+
 # --------------------------------------------------------------------------------------------
 # the example plans shipped in plans/
 
