@@ -152,11 +152,18 @@ def analyse(plan: Any, data: Any, recorder: Any) -> Any:
     if rejected:
         raise DataError(
             "the data were rejected by the plan's rules",
-            problems=[f"endpoint {name!r}: {why}" for name, why in rejected],
+            problems=[line for name, why in rejected
+                      for line in _rejection_lines(name, why)],
         )
     halted = [e["endpoint"] for e in endpoints if e["status"] == "halted"]
     return Analysis(endpoints=endpoints, across_endpoints=across,
                     status="halted" if halted else "completed", halted_endpoints=halted)
+
+
+def _rejection_lines(name: str, why: str) -> list[str]:
+    """One problem line for the endpoint, then each data problem (file, row, column) below it."""
+    head, *details = why.split("\n")
+    return [f"endpoint {name!r}: {head}", *details]
 
 
 # --------------------------------------------------------------------------------------------

@@ -350,7 +350,9 @@ def _prepare(ctx: Context, rec: Any, local: np.ndarray, name: str, shift_rule: A
     t = get_transform(name, 1.0 if name == "boxcox" and lmbda is None else lmbda)
     allv = _cat(ctx.take(ctx.values, local))
     need = np.atleast_1d(t.requires_shift(allv, axis=-1))
-    if shift_rule == "auto":
+    if shift_rule == "none":
+        shift = np.zeros(need.shape)
+    elif shift_rule == "auto":
         shift = np.where(need, np.atleast_1d(t.default_shift(allv, axis=-1)), 0.0)
     else:
         shift = np.where(need, float(shift_rule), 0.0)
@@ -672,8 +674,16 @@ def _fixed(ctx: Context, rec: Any, act: np.ndarray) -> None:
                                  plan_ref="transform.transform")
     outside = np.setdiff1d(act, inside)
     if outside.size:
-        ctx.stop(outside, REJECTED,
-                 f"values lie outside the domain of the plan's fixed transformation {name}")
+        rule = plan.transform.shift
+        shift_used = 0.0 if rule in ("auto", "none") else float(rule)
+        head = f"values lie outside the domain of the plan's fixed transformation {name}"
+        reasons = []
+        for i in outside.tolist():
+            found = ()
+            if ctx.domain_problems is not None:
+                found = ctx.domain_problems(int(ctx.ids[i]), DOMAIN_OF[name], shift_used, name)
+            reasons.append("\n".join((head, *found)))
+        ctx.stop(outside, REJECTED, reasons)
     if inside.size == 0:
         return
     groups = _forward(tr, ctx.take(ctx.values, inside), shift)

@@ -278,6 +278,8 @@ def _shift_words(shift: str | float, names: list[str]) -> str:
         return ""  # square roots and identity take zeros as they are
     if shift == "auto":
         return " (adding a recorded constant first if values are zero or negative)"
+    if shift == "none":
+        return " (adding nothing: zero or negative values are outside its domain)"
     return f" (adding {_number(float(shift))} first if values are zero or negative)"
 
 

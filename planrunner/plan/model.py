@@ -226,11 +226,11 @@ def _finite_number(value: Any, what: str) -> float:
 
 
 def _shift(value: Any) -> str | float:
-    if value == "auto":
-        return "auto"
-    number = _finite_number(value, "shift must be auto or a positive number")
+    if value in ("auto", "none"):
+        return value
+    number = _finite_number(value, "shift must be auto, none or a positive number")
     if number <= 0:
-        raise _rule_error(f"shift must be auto or a positive number; got {value!r}.")
+        raise _rule_error(f"shift must be auto, none or a positive number; got {value!r}.")
     return number
 
 
@@ -327,9 +327,10 @@ IntAtLeast1 = _int_at_least(1)
 IntAtLeast2 = _int_at_least(2)
 IntAtLeast100 = _int_at_least(100)
 Shift = Annotated[
-    Union[Literal["auto"], float],
+    Union[Literal["auto", "none"], float],
     PlainValidator(_shift),
-    WithJsonSchema({"anyOf": [{"const": "auto"}, {"type": "number", "exclusiveMinimum": 0}]}),
+    WithJsonSchema({"anyOf": [{"enum": ["auto", "none"]},
+                              {"type": "number", "exclusiveMinimum": 0}]}),
 ]
 PerLevelSpread = Annotated[
     Union[float, list[float]],
@@ -691,7 +692,8 @@ class FixedTransform(Strict):
     shift: Shift = Field(
         "auto",
         description="Constant added to every value when the data contain zeros or negative "
-        "values the transformation cannot take; auto lets the run choose and record it.",
+        "values the transformation cannot take; auto lets the run choose and record it; none "
+        "adds nothing, so such values reject the data.",
     )
 
     @model_validator(mode="after")
@@ -723,7 +725,8 @@ class LadderTransform(Strict):
     shift: Shift = Field(
         "auto",
         description="Constant added to every value when the data contain zeros or negative "
-        "values a rung cannot take; auto lets the run choose and record it.",
+        "values a rung cannot take; auto lets the run choose and record it; none adds nothing, "
+        "so a rung such values fall outside of is skipped.",
     )
 
     @model_validator(mode="after")
@@ -773,7 +776,8 @@ class BoxCoxTransform(Strict):
     shift: Shift = Field(
         "auto",
         description="Constant added to every value when the data contain zeros or negative "
-        "values; auto lets the run choose and record it.",
+        "values; auto lets the run choose and record it; none adds nothing, so such values "
+        "reject the data.",
     )
 
     @model_validator(mode="after")

@@ -434,3 +434,47 @@ def test_example_plan_runs_and_verifies(tmp_path, plan):
     checked = verify_run(tmp_path / "run")
     assert checked.exit_code == 0, checked.summary()
     assert checked.rerun == "identical"
+
+
+# --------------------------------------------------------------------------------------------
+# transformation domains are checked before a transformation is applied
+
+
+def test_log_of_zero_without_a_shift_is_rejected_with_row_and_column(tmp_path):
+    rows = {k: list(v) for k, v in ROWS.items()}
+    rows["beta"][2] = 0.0  # data row 10 of the file (header is row 1)
+    plan = write_study(tmp_path / "study", rows=rows,
+                       extra="transform: {policy: fixed, transform: log, shift: none}\n")
+    with pytest.raises(DataError) as info:
+        run_plan(plan, out=tmp_path / "run")
+    assert info.value.exit_code == 3
+    text = str(info.value)
+    assert "row 10, column 'thickness_um'" in text
+    assert "log" in text
+    assert not (tmp_path / "run").exists()
+
+
+def test_log_of_zero_with_the_automatic_shift_records_the_constant(tmp_path):
+    rows = {k: list(v) for k, v in ROWS.items()}
+    rows["beta"][2] = 0.0
+    plan = write_study(tmp_path / "study", rows=rows,
+                       extra="transform: {policy: fixed, transform: log, shift: auto}\n")
+    outcome = run_plan(plan, out=tmp_path / "run")
+    assert outcome.exit_code == 0
+    results = json.loads((tmp_path / "run" / "results.json").read_text(encoding="utf-8"))
+    transform = results["endpoints"][0]["transform"]
+    assert transform["name"] == "log"
+    assert transform["shift"] > 0
+
+
+def test_proportion_above_one_is_rejected_with_row_and_column(tmp_path):
+    rows = {k: [v / 20 for v in vals] for k, vals in ROWS.items()}
+    rows["gamma"][0] = 1.2  # data row 14
+    plan = write_study(tmp_path / "study", rows=rows)
+    text = plan.read_text(encoding="utf-8").replace(
+        "  response: thickness_um\n", "  response: thickness_um\n  response_kind: proportion\n")
+    plan.write_text(text, encoding="utf-8")
+    with pytest.raises(DataError) as info:
+        run_plan(plan, out=tmp_path / "run")
+    assert "row 14, column 'thickness_um'" in str(info.value)
+    assert "1.2" in str(info.value)

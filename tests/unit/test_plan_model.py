@@ -433,7 +433,7 @@ def test_shift_is_auto_or_positive(minimal_plan):
     minimal_plan["transform"] = {"policy": "fixed", "transform": "log", "shift": -1}
     assert errors(minimal_plan) == [
         rule(("transform", "fixed", "shift"),
-             "shift must be auto or a positive number; got -1.")
+             "shift must be auto, none or a positive number; got -1.")
     ]
     minimal_plan["transform"]["shift"] = 0.5
     assert Plan.model_validate(minimal_plan).transform.shift == 0.5
