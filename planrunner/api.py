@@ -586,6 +586,7 @@ def _execute(
             log.finish(status="completed", exit_code=0, results_sha256=digest)
             exit_code = 0
         head, records = log.head, len(log)
+        files += _render_reports(folder.path, model.report.formats)
 
     return RunOutcome(
         plan_id=model.id,
@@ -608,6 +609,20 @@ def _execute(
         plan_warnings=tuple(str(w) for w in loaded.warnings),
         across_endpoints=results["across_endpoints"],
     )
+
+
+def _render_reports(stage: Path, formats: Sequence[str]) -> list[str]:
+    """Render the plan's human-readable reports inside the staging folder, from its files alone.
+
+    They are moved into RUN_DIR together with results.json and the log, so a run folder never
+    holds reports of another run.
+    """
+    wanted = tuple(f for f in formats if f in ("html", "markdown"))
+    if not wanted:
+        return []
+    from .report.render import render_reports
+
+    return [p.name for p in render_reports(stage, formats=wanted)]
 
 
 # --------------------------------------------------------------------------------------------

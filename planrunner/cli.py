@@ -257,9 +257,29 @@ def verify(
     raise typer.Exit(outcome.exit_code)
 
 
-# Still to come, each a thin layer over its API function:
+@app.command()
+def report(
+    run_dir: Annotated[Path, typer.Argument(help="The run folder to render.", metavar="RUN_DIR")],
+    formats: Annotated[
+        Optional[list[str]],
+        typer.Option("--format", help="html or markdown; repeat for both (default: both)."),
+    ] = None,
+) -> None:
+    """Rebuild report.html and report.md from a run folder (refused when verify would fail)."""
+    from .report.render import render_reports
+
+    with _handled():
+        chosen = tuple(formats) if formats else ("html", "markdown")
+        bad = [f for f in chosen if f not in ("html", "markdown")]
+        if bad:
+            raise PlanError(f"--format {bad[0]!r} is not allowed; use html or markdown",
+                            problems=[])
+        for path in render_reports(run_dir, formats=chosen):
+            typer.echo(f"wrote {path}")
+
+
+# Still to come, a thin layer over its API function:
 #   rehearse PLAN   -> planrunner.rehearse_plan
-#   report RUN_DIR  -> planrunner.report
 
 
 def _write_text(path: Path, text: str, *, replace: bool) -> None:

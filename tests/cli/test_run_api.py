@@ -97,7 +97,7 @@ def test_run_writes_results_log_and_resolved_plan(tmp_path):
 
     assert outcome.exit_code == 0 and outcome.status == "completed"
     assert sorted(p.name for p in out.iterdir()) == [
-        "decisions.jsonl", "plan.resolved.yaml", "results.json"]
+        "decisions.jsonl", "plan.resolved.yaml", "report.html", "report.md", "results.json"]
     # nothing left beside RUN_DIR: no staging folder, no lock file
     assert sorted(p.name for p in out.parent.iterdir()) == ["first"]
 
