@@ -21,6 +21,7 @@ __all__ = sorted(
         "__version__",
         "load_plan",
         "lock_plan",
+        "rehearse_plan",
         "run_plan",
         "validate_plan",
         "verify_run",
@@ -31,6 +32,7 @@ _LAZY = {
     "load_plan": ("planrunner.plan.load", "load_plan"),
     "validate_plan": ("planrunner.plan.load", "validate_plan"),
     "run_plan": ("planrunner.api", "run_plan"),
+    "rehearse_plan": ("planrunner.engine.rehearse", "rehearse_plan"),
     "lock_plan": ("planrunner.api", "lock_plan"),
     "verify_run": ("planrunner.api", "verify_run"),
 }
@@ -53,4 +55,5 @@ def __dir__() -> list[str]:
 
 if TYPE_CHECKING:  # pragma: no cover
     from .api import lock_plan, run_plan, verify_run
+    from .engine.rehearse import rehearse_plan
     from .plan.load import load_plan, validate_plan

@@ -18,7 +18,7 @@ import tempfile
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Annotated, Optional
+from typing import Annotated, Any, Optional
 
 import typer
 
@@ -278,8 +278,72 @@ def report(
             typer.echo(f"wrote {path}")
 
 
-# Still to come, a thin layer over its API function:
-#   rehearse PLAN   -> planrunner.rehearse_plan
+@app.command()
+def rehearse(
+    plan: Annotated[Path, typer.Argument(help="The plan file to rehearse.", metavar="PLAN")],
+    out: Annotated[
+        Optional[Path],
+        typer.Option("--out", help="Folder to write (default: reports/<plan id>-rehearsal)."),
+    ] = None,
+    replicates: Annotated[
+        Optional[int], typer.Option("--replicates", help="Replace rehearsal.replicates.")
+    ] = None,
+    seed: Annotated[Optional[int], typer.Option("--seed", help="Replace rehearsal.seed.")] = None,
+    scenario: Annotated[
+        Optional[str], typer.Option("--scenario", help="Rehearse only this scenario.")
+    ] = None,
+    target_power: Annotated[
+        Optional[float],
+        typer.Option("--target-power", help="Also find the smallest n per group whose "
+                     "simulated power reaches this target for --scenario."),
+    ] = None,
+) -> None:
+    """Simulate the plan's scenarios through its whole decision tree: paths, type-I error, power.
+
+    Writes rehearsal.json, rehearsal.md and rehearsal.html. Exit 0 when the rehearsal ran.
+    """
+    from .engine.rehearse import rehearse_plan
+
+    with _handled():
+        with _progress_bar("rehearsing") as progress:
+            outcome = rehearse_plan(plan, out=out, replicates=replicates, seed=seed,
+                                    scenario=scenario, target_power=target_power,
+                                    progress=progress)
+        typer.echo(outcome.summary())
+    raise typer.Exit(outcome.exit_code)
+
+
+@contextmanager
+def _progress_bar(label: str) -> Iterator[Any]:
+    """A progress bar on standard error when it is a terminal; the callback takes (done, total).
+
+    Yields None (no callback) when standard error is not a terminal, so logs stay clean.
+    """
+    if not sys.stderr.isatty():
+        yield None
+        return
+    bar: Any = None
+    shown = 0
+
+    def progress(done: int, total: int) -> None:
+        nonlocal bar, shown
+        if bar is None:
+            bar = typer.progressbar(length=max(int(total), 1), label=label, file=sys.stderr)
+            bar.__enter__()
+        if total != bar.length:  # a sample-size search may widen or shrink its bound
+            bar.length = max(int(total), 1)
+        step = int(done) - shown
+        if step > 0:
+            bar.update(step)
+            shown = int(done)
+
+    try:
+        yield progress
+    finally:
+        if bar is not None:
+            bar.__exit__(None, None, None)
+
+
 
 
 def _write_text(path: Path, text: str, *, replace: bool) -> None:

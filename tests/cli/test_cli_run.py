@@ -102,3 +102,28 @@ def test_run_with_another_data_file(study, tmp_path):
 def test_verify_on_a_missing_folder_is_misuse(tmp_path):
     result = invoke("verify", str(tmp_path / "nothing-here"))
     assert result.exit_code == 2
+
+
+def test_rehearse_writes_its_three_files(study, tmp_path):
+    out = tmp_path / "rehearsal"
+    result = invoke("rehearse", str(study), "--out", str(out), "--replicates", "200")
+    assert result.exit_code == 0, result.output
+    assert "200 replicates per scenario" in result.output
+    assert sorted(p.name for p in out.iterdir()) == [
+        "rehearsal.html", "rehearsal.json", "rehearsal.md"]
+
+
+def test_rehearse_unknown_scenario_is_misuse(study, tmp_path):
+    result = invoke("rehearse", str(study), "--out", str(tmp_path / "r"), "--replicates", "200",
+                    "--scenario", "no such scenario")
+    assert result.exit_code == 2
+    assert "scenario" in result.output
+
+
+def test_report_rebuilds_from_the_run_folder(study, tmp_path):
+    out = tmp_path / "run"
+    assert invoke("run", str(study), "--out", str(out)).exit_code == 0
+    (out / "report.html").unlink()
+    result = invoke("report", str(out), "--format", "html")
+    assert result.exit_code == 0, result.output
+    assert (out / "report.html").is_file()
