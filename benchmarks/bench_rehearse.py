@@ -1,11 +1,12 @@
 """Benchmark: a rehearsal of 10,000 replicates through the batched decision tree.
 
-The plan has 4 groups of 8, a transform ladder (identity, sqrt, log10) re-tested with Levene
-(median) after each rung, a Welch fallback and Tukey-Kramer comparisons after every omnibus
-test. The baseline is a plain per-replicate loop over scipy calls (levene, f_oneway,
-f_oneway(equal_var=False), tukey_hsd), timed over a few replicates and scaled to 10,000; it
-does less work than the plan (no ladder re-tests, no normality check), so the ratio is
-conservative.
+The first plan has 4 groups of 8, a transform ladder (identity, sqrt, log10) re-tested with
+Levene (median) after each rung, a Welch fallback and Tukey-Kramer comparisons after every
+omnibus test; two more plans run the same scenario through Welch's ANOVA with Games-Howell and
+through the classic ANOVA with Dunnett's comparisons against a control. The baseline is a
+plain per-replicate loop over the matching scipy calls, timed over a few replicates and scaled
+to 10,000; it does less work than the plans (no ladder re-tests, no normality check), so the
+ratios are conservative.
 
 Run: python benchmarks/bench_rehearse.py  (prints medians and the ratio; asserts nothing)
 """
@@ -47,7 +48,24 @@ PLAN = {
 }
 
 
-def _scipy_loop(groups: tuple[np.ndarray, ...], count: int) -> float:
+#: Further cases: the same scenario through a Welch + Games-Howell plan (the recommended
+#: default) and a classic + Dunnett plan against the first level as control.
+CASES = (
+    ("ladder + Welch fallback + Tukey-Kramer", {}, "tukey"),
+    ("Welch ANOVA + Games-Howell, no gate",
+     {"omnibus": "welch", "variance_check": {"method": "none"}, "transform": {"policy": "none"},
+      "comparisons": {"method": "games_howell", "only_after_significant_omnibus": False}},
+     "games_howell"),
+    ("classic ANOVA + Dunnett against a control",
+     {"hypotheses": {"family": "against_control"},
+      "data": {**PLAN["data"], "control": "a"},
+      "variance_check": {"method": "none"}, "transform": {"policy": "none"},
+      "comparisons": {"method": "dunnett", "only_after_significant_omnibus": False}},
+     "dunnett"),
+)
+
+
+def _scipy_loop(groups: tuple[np.ndarray, ...], count: int, kind: str) -> float:
     from scipy import stats
 
     start = time.perf_counter()
@@ -55,15 +73,22 @@ def _scipy_loop(groups: tuple[np.ndarray, ...], count: int) -> float:
         warnings.simplefilter("ignore")
         for r in range(count):
             gs = [g[r] for g in groups]
-            stats.levene(*gs, center="median")
-            stats.f_oneway(*gs)
-            stats.f_oneway(*gs, equal_var=False)
-            stats.tukey_hsd(*gs)
+            if kind == "tukey":
+                stats.levene(*gs, center="median")
+                stats.f_oneway(*gs)
+                stats.f_oneway(*gs, equal_var=False)
+                stats.tukey_hsd(*gs)
+            elif kind == "games_howell":
+                stats.f_oneway(*gs, equal_var=False)
+                stats.tukey_hsd(*gs, equal_var=False)
+            else:
+                stats.f_oneway(*gs)
+                stats.dunnett(*gs[1:], control=gs[0], rng=np.random.default_rng(1))
     return time.perf_counter() - start
 
 
-def main() -> int:
-    model = load_plan_bytes(yaml.safe_dump(PLAN).encode("utf-8")).model
+def _case(label: str, changes: dict, kind: str) -> None:
+    model = load_plan_bytes(yaml.safe_dump({**PLAN, **changes}).encode("utf-8")).model
     scenario = model.rehearsal.scenarios[0]
     rehearse_scenario(model, scenario, seed=17, replicates=500)          # warm caches/imports
     times = []
@@ -75,22 +100,28 @@ def main() -> int:
     ours = statistics.median(times)
 
     groups = simulate(scenario, 17, 0, LOOP_REPLICATES)
-    _scipy_loop(groups, 3)                                                  # warm
-    loops = [_scipy_loop(groups, LOOP_REPLICATES) for _ in range(REPEATS)]
+    _scipy_loop(groups, 3, kind)                                            # warm
+    loops = [_scipy_loop(groups, LOOP_REPLICATES, kind) for _ in range(REPEATS)]
     per = statistics.median(loops) / LOOP_REPLICATES
     scaled = per * REPLICATES
 
     assert result is not None
     paths = ", ".join(f"{p['label']} {p['rate']:.3f}" for p in result["paths"])
-    print(f"rehearsal, 4 groups x 8, ladder + Welch fallback + Tukey-Kramer, "
-          f"{REPLICATES} replicates")
+    calls = {"tukey": "levene, f_oneway, f_oneway(equal_var=False), tukey_hsd",
+             "games_howell": "f_oneway(equal_var=False), tukey_hsd(equal_var=False)",
+             "dunnett": "f_oneway, dunnett"}[kind]
+    print(f"\nrehearsal, 4 groups x 8, {label}, {REPLICATES} replicates")
     print(f"  paths: {paths}")
     print(f"  planrunner rehearse_scenario: median {ours:.2f} s over {REPEATS} runs "
           f"({1e6 * ours / REPLICATES:.0f} us per replicate)")
-    print(f"  scipy per-replicate loop (levene, f_oneway, f_oneway(equal_var=False), "
-          f"tukey_hsd): {1e3 * per:.2f} ms per replicate, {scaled:.1f} s scaled to "
-          f"{REPLICATES}")
+    print(f"  scipy per-replicate loop ({calls}): {1e3 * per:.2f} ms per replicate, "
+          f"{scaled:.1f} s scaled to {REPLICATES}")
     print(f"  ratio loop / batched: {scaled / ours:.1f}x")
+
+
+def main() -> int:
+    for label, changes, kind in CASES:
+        _case(label, changes, kind)
     return 0
 
 

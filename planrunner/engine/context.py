@@ -195,6 +195,9 @@ class BatchOutcome:
         Final analysis scale: ``identity``, a transformation name, ``boxcox`` or ``ranks``.
     omnibus : ndarray of str
         The omnibus test used (empty where halted).
+    compared : ndarray of str
+        What the conclusion is about: ``means``, ``geometric_means`` or ``locations`` (empty
+        where the element did not complete).
     path : ndarray of int
         Index into ``path_labels`` (``"log10 / classic"``, ``"identity / welch"``,
         ``"halted"``, ...): the route an element took, for counting.
@@ -203,7 +206,10 @@ class BatchOutcome:
     pairs : tuple of (int, int)
         The pairs of the planned comparisons (indices in level order).
     comparisons_performed : ndarray of bool
-    comparison_pvalues : ndarray (B, n_pairs), NaN where not performed
+    comparison_pvalues : ndarray (B, n_pairs)
+        Adjusted p-values; NaN where not performed. Without a detailed record (a rehearsal)
+        the quadrature methods decide by critical values, so their p-values are NaN except
+        next to the critical value.
     comparison_rejected : ndarray of bool (B, n_pairs)
     results : dict of ndarray
         Every per-element field the stages wrote (first axis = element).
@@ -213,6 +219,7 @@ class BatchOutcome:
     status: np.ndarray
     scale: np.ndarray
     omnibus: np.ndarray
+    compared: np.ndarray
     path: np.ndarray
     path_labels: tuple[str, ...]
     omnibus_statistic: np.ndarray
@@ -281,6 +288,9 @@ def merge_outcome(parts: list[Context], size: int, pairs: tuple[tuple[int, int],
         status=status,
         scale=scale,
         omnibus=omnibus,
+        compared=np.where(status == "completed",
+                          np.array([str(c) if c is not None else "" for c in
+                                    results["compared"].tolist()], dtype=object), "").astype(str),
         path=path.astype(np.int64).reshape(size),
         path_labels=tuple(str(x) for x in labels.tolist()),
         omnibus_statistic=results["omni_stat"],

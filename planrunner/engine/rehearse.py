@@ -201,12 +201,9 @@ class _Tally:
         for label, c in outcome.path_counts().items():
             if c:
                 self.paths[label] = self.paths.get(label, 0) + c
-        compared = outcome.results.get("compared")
-        if compared is not None:
-            words = np.where(outcome.status == "completed", compared.astype(str), "none")
-            for word, c in zip(*np.unique(words, return_counts=True)):
-                if word != "none":
-                    self.compared[str(word)] = self.compared.get(str(word), 0) + int(c)
+        for word, c in zip(*np.unique(outcome.compared, return_counts=True)):
+            if word:                                   # "" where the element did not complete
+                self.compared[str(word)] = self.compared.get(str(word), 0) + int(c)
         self.omnibus += int(np.count_nonzero(outcome.omnibus_rejected))
         rej = np.asarray(outcome.comparison_rejected, dtype=bool).reshape(b, len(self.pairs))
         counts = rej.sum(axis=0).astype(np.int64)

@@ -259,11 +259,18 @@ def endpoint_result(plan: Any, ep: Any, outcome: BatchOutcome, j: int) -> dict[s
         x = _f(x)
         return None if x is None else restore_offset(x, offset)
 
+    used = _values_used(ep, r["outliers"][j])
+    # values on the analysis scale, computed as the stages compute them: f(x + shift)
+    analysed = [t.forward(v + shift) if completed and t is not None and not ranks else None
+                for v in used]
     groups = []
     for i, g in enumerate(ep.groups):
         item: dict[str, Any] = {"level": g.level, "n": g.n, "n_missing": len(g.missing_rows),
-                                "n_non_detects": len(g.non_detects), "original": None,
-                                "analysis": None, "back_transformed": None}
+                                "n_non_detects": len(g.non_detects), "ci_level": plan.ci_level,
+                                "values": [float(x) for x in used[i]],
+                                "analysis_values": (None if analysed[i] is None else
+                                                    [float(x) for x in analysed[i]]),
+                                "original": None, "analysis": None, "back_transformed": None}
         if "orig_mean" in r and np.isfinite(r["orig_mean"][j, i]):
             item["original"] = {"mean": restore(r["orig_mean"][j, i]),
                                 "sd": _f(r["orig_sd"][j, i]), "se": _f(r["orig_se"][j, i]),
@@ -284,7 +291,7 @@ def endpoint_result(plan: Any, ep: Any, outcome: BatchOutcome, j: int) -> dict[s
     transform = {"name": tname, "shift": shift, "lambda": lam,
                  "why": r["why"][j] or ("the plan analyses the data as measured"
                                         if plan.transform.policy == "none" else ""),
-                 "tried": tried}
+                 "tried": tried, **_box_cox_fields(plan, r, j)}
 
     checks = []
     for c in outcome.checks:
@@ -377,4 +384,40 @@ def endpoint_result(plan: Any, ep: Any, outcome: BatchOutcome, j: int) -> dict[s
         "sensitivity": list(r["sensitivity"][j] or []),
         "conclusion": conclusion,
         "across_endpoints": None,
+    }
+
+
+def _values_used(ep: Any, outliers: Any) -> list[np.ndarray]:
+    """Per group, the plain values the analysis used, in file order (values the plan removed
+    as outliers are left out). The report derives the residuals of the one-way model from
+    these, or from the analysis values: value minus its group mean."""
+    removed = {(str(o["level"]), int(o["row"])) for o in outliers or []
+               if o.get("action") == "removed"}
+    out = []
+    for g in ep.groups:
+        keep = np.array([(g.level, int(row)) not in removed for row in g.rows], dtype=bool)
+        out.append(np.asarray(g.values, dtype=np.float64)[keep])
+    return out
+
+
+def _box_cox_fields(plan: Any, r: dict[str, np.ndarray], j: int) -> dict[str, Any]:
+    """``lambda_estimate``, ``lambda_ci`` and the thinned ``profile`` when Box-Cox estimated
+    lambda for element ``j``; null otherwise."""
+    est = _f(r["boxcox_lambda"][j]) if "boxcox_lambda" in r else None
+    if est is None or "boxcox_profile" not in r:
+        return {"lambda_estimate": None, "lambda_ci": None, "profile": None}
+    from scipy.special import chdtri
+
+    level = float(plan.transform.ci_level)
+    peak = _f(r["boxcox_loglik"][j])
+    grid, ll = r["boxcox_grid"][j], r["boxcox_profile"][j]
+    finite = np.isfinite(grid) & np.isfinite(ll)
+    # Box & Cox (1964): the interval is {lambda: loglik >= max - chi2_1(level) / 2}
+    cutoff = None if peak is None else _f(peak - 0.5 * chdtri(1.0, 1.0 - level))
+    return {
+        "lambda_estimate": est,
+        "lambda_ci": [_f(r["boxcox_low"][j]), _f(r["boxcox_high"][j])],
+        "profile": {"lambda": [float(x) for x in grid[finite]],
+                    "loglik": [float(x) for x in ll[finite]],
+                    "loglik_max": peak, "cutoff": cutoff, "confidence_level": level},
     }

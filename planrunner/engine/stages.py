@@ -23,18 +23,11 @@ import numpy as np
 from ..stats._core import DomainError
 from ..stats.anova import kruskal_wallis, oneway_anova, welch_anova
 from ..stats.boxcox import boxcox_oneway
-from ..stats.comparisons import (
-    Comparisons,
-    _pvalue_adjust,
-    dunnett,
-    games_howell,
-    pairwise_t,
-    tukey_kramer,
-)
-from ..stats.distributions import fmax_critical, fmax_sf
+from ..stats.comparisons import Comparisons, dunnett, games_howell, pairwise_t, tukey_kramer
 from ..stats.effect import effect_sizes as _effect_sizes
+from ..stats.hartley import hartley_fmax
 from ..stats.normality import shapiro_wilk
-from ..stats.summary import describe_groups, residuals
+from ..stats.summary import describe_groups, studentized_residuals
 from ..stats.transforms import get_transform
 from ..stats.variance import bartlett, fligner_killeen, levene
 from .context import ACTIVE, HALTED, REJECTED, CheckEntry, Context
@@ -151,26 +144,29 @@ def _variance_test(ctx: Context, groups: tuple[np.ndarray, ...]) -> dict[str, np
     m = groups[0].shape[0]
     if v.method == "hartley_fmax":
         k = len(groups)
-        var = np.stack([g.var(axis=-1, ddof=1) if g.shape[-1] > 1 else np.zeros(m)
-                        for g in _centre_each(groups)], axis=-1)
-        lo = var.min(axis=-1)
-        ok = lo > 0
-        fmax = np.where(ok, var.max(axis=-1) / np.where(ok, lo, 1.0), np.nan)
         sizes = [g.shape[-1] - 1 for g in groups]
         # plan: exact = the Fmax distribution with each group's own df (equal sizes: one df);
         # smallest_group = the equal-df distribution with the smallest group's df
+        unequal_n = getattr(v, "unequal_n", "exact")
         if len(set(sizes)) == 1:
             df: Any = sizes[0]
-        elif getattr(v, "unequal_n", "exact") == "smallest_group":
+        elif unequal_n == "smallest_group":
             df = min(sizes)
         else:
             df = tuple(sizes)
-        crit = fmax_critical(k, df, v.alpha)
-        if ctx.detailed and ok.any():
+        if min(sizes) < 1:                      # a group of one value has no variance
+            ok = np.zeros(m, dtype=bool)
+            fmax = np.full(m, np.nan)
             p = np.full(m, np.nan)
-            p[ok] = fmax_sf(fmax[ok], k, df)
+            crit = np.nan
         else:
-            p = np.full(m, np.nan)
+            # the p-value only explains the decision: computed for a detailed record only
+            res = hartley_fmax(*groups, alpha=v.alpha, unequal_n=unequal_n,
+                               pvalues=ctx.detailed)
+            ok = np.atleast_1d(res.computable)
+            fmax = np.atleast_1d(res.statistic)
+            p = np.atleast_1d(res.pvalue)
+            crit = res.critical_value
         passed = ok & (np.where(ok, fmax, np.inf) <= crit)
         reason = np.where(ok, "", "a group has zero variance, so Fmax is undefined").astype(object)
         return {"statistic": fmax, "critical": np.full(m, crit), "p": p, "passed": passed,
@@ -186,11 +182,6 @@ def _variance_test(ctx: Context, groups: tuple[np.ndarray, ...]) -> dict[str, np
     passed = ok & (np.where(ok, p, 0.0) > v.alpha)
     return {"statistic": np.atleast_1d(res.statistic), "critical": None, "p": p,
             "passed": passed, "computable": ok, "reason": np.atleast_1d(res.reason).astype(object)}
-
-
-def _centre_each(groups: tuple[np.ndarray, ...]) -> tuple[np.ndarray, ...]:
-    # deviations from each group's first value: constant leading digits cancel exactly
-    return tuple(g - g[..., :1] for g in groups)
 
 
 def _normality_test(ctx: Context, groups: tuple[np.ndarray, ...]) -> dict[str, np.ndarray]:
@@ -444,7 +435,8 @@ def screen_outliers(ctx: Context, rec: Any) -> Context | list[Context]:
                    outcome="not_screened", action="keep every value",
                    reason="The plan screens no outliers; every value is analysed.")
         return ctx
-    t = _studentized(ctx.take(ctx.centred, act))          # k arrays (m, n_i), NaN: n/a
+    # k arrays (m, n_i); NaN where not computable (never flagged)
+    t = studentized_residuals(*ctx.take(ctx.centred, act)).residuals
     flags = tuple(np.abs(np.nan_to_num(x, nan=0.0)) > o.threshold for x in t)
     count = sum(f.sum(axis=-1) for f in flags)
     remove = o.action == "remove"
@@ -515,30 +507,6 @@ def screen_outliers(ctx: Context, rec: Any) -> Context | list[Context]:
 def _finite(x: float) -> float | None:
     x = float(x)
     return x if np.isfinite(x) else None
-
-
-def _studentized(groups: tuple[np.ndarray, ...]) -> tuple[np.ndarray, ...]:
-    """Externally studentized residuals of the one-way model, per group (NaN where undefined).
-
-    r = e / (s sqrt(1 - h)) with h = 1/n_i and s^2 = SS_within / (N - k); the external form
-    t = r sqrt((N - k - 1) / (N - k - r^2)) (Cook & Weisberg 1982, Residuals and Influence in
-    Regression, section 2.2.2).
-    """
-    n = np.array([g.shape[-1] for g in groups], dtype=float)
-    res = residuals(*groups)                                       # (m, N), centred per group
-    dfw = float(n.sum() - n.size)
-    ss = (res * res).sum(axis=-1)
-    h = np.concatenate([np.full(int(ni), 1.0 / ni) for ni in n])
-    ok = (dfw - 1.0 >= 1.0) & (ss > 0)
-    s2 = np.where(ok, ss / max(dfw, 1.0), 1.0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        r = res / np.sqrt(s2[:, None] * np.where(h < 1, 1.0 - h, np.nan))
-        den = dfw - r * r
-        t = np.where(den > 0, r * np.sqrt((dfw - 1.0) / np.where(den > 0, den, 1.0)),
-                     np.sign(r) * np.inf)
-    t = np.where(ok[:, None] & (h < 1), t, np.nan)
-    bounds = np.concatenate([[0], np.cumsum(n)]).astype(int)
-    return tuple(t[:, bounds[i]:bounds[i + 1]] for i in range(len(groups)))
 
 
 def describe(ctx: Context, rec: Any) -> Context:
@@ -786,6 +754,16 @@ def _box_cox(ctx: Context, rec: Any, act: np.ndarray) -> None:
     ctx.out["boxcox_lambda"][inside] = est
     ctx.out["boxcox_low"][inside] = lo
     ctx.out["boxcox_high"][inside] = hi
+    if ctx.full:  # kept for the report: the profile on at most 121 grid points, and its peak
+        grid = np.asarray(bc.profile.lmbda, dtype=np.float64)
+        step = -(-(grid.size - 1) // 120)
+        keep = np.unique(np.append(np.arange(0, grid.size, step), grid.size - 1))
+        ll = np.reshape(bc.profile.loglik, (-1, grid.size))[ok][:, keep]
+        for key, value in (("boxcox_grid", np.broadcast_to(grid[keep], ll.shape)),
+                           ("boxcox_profile", ll)):
+            ctx.out.setdefault(key, np.full((ctx.size, keep.size), np.nan))[inside] = value
+        ctx.out.setdefault("boxcox_loglik", np.full(ctx.size, np.nan))[inside] = \
+            np.atleast_1d(bc.loglik)[ok]
     level = fmt(100 * t.ci_level)
 
     def reason(j: int) -> str:
@@ -1010,79 +988,30 @@ def omnibus(ctx: Context, rec: Any) -> Context:
     return ctx
 
 
-def _compare(plan: Any, groups: tuple[np.ndarray, ...], method: str) -> Comparisons:
-    """The planned follow-up comparisons on one sub-batch."""
+def _compare(plan: Any, groups: tuple[np.ndarray, ...], method: str, *,
+             decide_only: bool = False) -> Comparisons:
+    """The planned follow-up comparisons on one sub-batch, with ``rejected`` at plan.alpha.
+
+    ``decide_only`` (a rehearsal counts decisions only): the quadrature methods decide by
+    their critical values and compute adjusted p-values only next to them (same rejections).
+    """
     c = plan.comparisons
     cl = plan.ci_level
+    route = {"alpha": plan.alpha, "pvalues": not decide_only}
     if method == "tukey_kramer":
-        return tukey_kramer(*groups, confidence_level=cl)
+        return tukey_kramer(*groups, confidence_level=cl, **route)
     if method == "games_howell":
-        return games_howell(*groups, confidence_level=cl)
+        return games_howell(*groups, confidence_level=cl, **route)
+    alternative = _ALTERNATIVE[plan.hypotheses.alternative]
     if method == "dunnett":
         control = list(plan.data.levels).index(plan.data.control)
-        return dunnett(*groups, control=control,
-                       alternative=_ALTERNATIVE[plan.hypotheses.alternative],
-                       confidence_level=cl)
-    if (plan.hypotheses.family != "against_control" and c.error_term == "pooled"
-            and plan.hypotheses.alternative == "two_sided"):
-        return pairwise_t(*groups, adjust=c.adjust, confidence_level=cl)
-    return _pairwise_t(plan, groups)
-
-
-def _pairwise_t(plan: Any, groups: tuple[np.ndarray, ...]) -> Comparisons:
-    """Pairwise t with Welch (per_pair) or pooled error terms, for the family's pairs.
-
-    (planrunner.stats.comparisons.pairwise_t covers all pairs with the pooled error term;
-    this composition covers per_pair error terms and the pairs against a control.)
-    """
-    from scipy import special
-
-    c = plan.comparisons
-    k = len(groups)
-    pairs = _pairs(plan, k)
-    s = describe_groups(*groups, confidence_level=plan.ci_level)
-    n = np.array([g.shape[-1] for g in groups], dtype=float)
-    mean, var = np.asarray(s.mean), np.asarray(s.sd) ** 2
-    a = np.array([p[0] for p in pairs])
-    b = np.array([p[1] for p in pairs])
-    cm = tuple(g - groups[0][..., :1] for g in groups)             # centred: keep digits
-    cmean = np.stack([g.mean(axis=-1) for g in cm], axis=-1)
-    diff = cmean[:, a] - cmean[:, b]
-    if c.error_term == "pooled":
-        dfw = n.sum() - k
-        mse = ((n - 1) * var).sum(axis=-1) / dfw
-        se = np.sqrt(mse[:, None] * (1 / n[a] + 1 / n[b]))
-        df = np.full(diff.shape, dfw)
-    else:
-        wa, wb = var[:, a] / n[a], var[:, b] / n[b]
-        se = np.sqrt(wa + wb)
-        # Welch-Satterthwaite degrees of freedom of each pair
-        df = (wa + wb) ** 2 / (wa ** 2 / (n[a] - 1) + wb ** 2 / (n[b] - 1))
-    ok = se > 0
-    t = np.where(ok, diff / np.where(ok, se, 1.0), np.nan)
-    alt = plan.hypotheses.alternative
-    if alt == "two_sided":
-        raw = 2.0 * special.stdtr(df, -np.abs(np.nan_to_num(t)))
-    elif alt == "greater":
-        raw = special.stdtr(df, -np.nan_to_num(t))
-    else:
-        raw = special.stdtr(df, np.nan_to_num(t))
-    p = _pvalue_adjust(np.clip(raw, 0.0, 1.0), c.adjust)
-    m = len(pairs)
-    alpha = 1.0 - plan.ci_level
-    alpha_each = -np.expm1(np.log1p(-alpha) / m) if c.adjust == "sidak" else alpha / m
-    sides = 2.0 if alt == "two_sided" else 1.0
-    crit = special.stdtrit(df, 1.0 - alpha_each / sides)
-    lo = np.where(ok, diff - crit * se, np.nan) if alt != "less" else np.full(diff.shape, -np.inf)
-    hi = np.where(ok, diff + crit * se, np.nan) if alt != "greater" else np.full(diff.shape, np.inf)
-    return Comparisons(
-        method="pairwise_t", pairs=pairs, difference=diff, se=np.where(ok, se, np.nan),
-        statistic=t, df=df, critical_value=crit, ci_low=lo, ci_high=hi,
-        pvalue_adjusted=np.where(ok, p, np.nan), confidence_level=plan.ci_level,
-        adjust=c.adjust, alternative=_ALTERNATIVE[alt],
-        interval=f"{'Sidak' if c.adjust == 'sidak' else 'Bonferroni'}-level intervals",
-        computable=ok, reason="" if ok.all() else "a standard error is zero",
-    )
+        return dunnett(*groups, control=control, alternative=alternative,
+                       confidence_level=cl, **route)
+    against = plan.hypotheses.family == "against_control"
+    control = list(plan.data.levels).index(plan.data.control) if against else 0
+    return pairwise_t(*groups, adjust=c.adjust, confidence_level=cl,
+                      pairs="control" if against else "all", control=control,
+                      error_term=c.error_term, alternative=alternative, alpha=plan.alpha)
 
 
 def follow_ups(ctx: Context, rec: Any) -> Context:
@@ -1132,9 +1061,11 @@ def follow_ups(ctx: Context, rec: Any) -> Context:
         why = "the plan makes them whatever the omnibus result"
     if do.size == 0:
         return ctx
-    res = _compare(plan, ctx.take(ctx.analysis, do), c.method)
+    # Without a detailed record (rehearsal) only the decisions count: p <= alpha is decided
+    # through the critical value, with the same rejections (p-values NaN away from it).
+    res = _compare(plan, ctx.take(ctx.analysis, do), c.method, decide_only=not ctx.detailed)
     p = np.asarray(res.pvalue_adjusted).reshape(do.size, -1)
-    sig = np.nan_to_num(p, nan=1.0) <= plan.alpha
+    sig = np.asarray(res.rejected).reshape(do.size, -1)
     for key, arr in (("cmp_diff", res.difference), ("cmp_se", res.se),
                      ("cmp_stat", res.statistic), ("cmp_df", res.df), ("cmp_low", res.ci_low),
                      ("cmp_high", res.ci_high), ("cmp_p", p)):

@@ -11,17 +11,14 @@ and text is written as SVG ``<text>`` (``svg.fonttype: none``), which matplotlib
 XML prolog, doctype and metadata block are removed so the SVG can sit inside HTML, and each
 SVG gets ``role="img"`` with ``<title>`` and ``<desc>`` as its text alternative.
 
-Fields used beyond the engine's standard shape, each optional:
+Fields of results.json the figures read beyond the group summaries:
 
-``groups[j].values``
-    The group's values on the original scale (adds the individual points).
-``groups[j].analysis_values``
-    The same values on the analysis scale.
-``residuals``
-    Residuals on the analysis scale (the normal quantile plot needs them).
-``transform.profile``
-    ``{"lambda": [...], "loglik": [...]}``: the Box-Cox profile log-likelihood, with
-    ``transform.lambda_ci`` (``[low, high]``) for the interval.
+``groups[j].values`` and ``groups[j].analysis_values``
+    The values used, on the original and on the analysis scale (individual points; a group
+    with more than :data:`MAX_POINTS` values is drawn as that many evenly spaced quantiles).
+    The residuals of the quantile plot are derived from them (:func:`residuals_of`).
+``transform.lambda_estimate``, ``transform.lambda_ci`` and ``transform.profile``
+    The Box-Cox estimate, its interval and the profile log-likelihood with its cut-off.
 """
 
 from __future__ import annotations
@@ -35,12 +32,14 @@ from typing import Any, Mapping, Sequence
 from markupsafe import escape
 
 __all__ = [
+    "MAX_POINTS",
     "ReportFigure",
     "boxcox_profile_figure",
     "comparisons_figure",
     "endpoint_figures",
     "group_estimates_figure",
     "residual_quantile_figure",
+    "residuals_of",
     "spread_figure",
 ]
 
@@ -51,6 +50,9 @@ _TEAL = "#0f5e63"
 _OCHRE = "#b5651d"
 _GREY = "#8a949b"
 _PALE = "#e6e1d6"
+
+#: At most this many points are drawn per group (and in the quantile plot, ten times as many).
+MAX_POINTS = 300
 
 _RC = {
     "svg.fonttype": "none",
@@ -165,7 +167,17 @@ def _levels(endpoint: Mapping[str, Any]) -> list[str]:
     return [str(g.get("level")) for g in endpoint.get("groups") or []]
 
 
+def _panel_title(scale: str | None) -> str:
+    """A short panel title: ``Analysis scale: log10``, ``Analysis scale: Box-Cox λ = -0.5``."""
+    m = re.fullmatch(r"box_cox\(lambda=(.*)\)", str(scale))
+    words = f"Box-Cox λ = {m.group(1)}" if m else _scale_words(scale).removesuffix(" scale")
+    return f"Analysis scale: {words}"
+
+
 def _scale_words(scale: str | None) -> str:
+    m = re.fullmatch(r"box_cox\(lambda=(.*)\)", str(scale))
+    if m:
+        return f"Box-Cox scale, λ = {m.group(1)}"
     return {
         None: "analysis scale",
         "original": "original scale",
@@ -182,41 +194,58 @@ def _scale_words(scale: str | None) -> str:
 # figures
 
 
+def _thin(values: Sequence[float], limit: int) -> tuple[list[float], bool]:
+    """At most ``limit`` values: all of them, or ``limit`` evenly spaced order statistics."""
+    if len(values) <= limit:
+        return list(values), False
+    ordered = sorted(values)
+    last = len(ordered) - 1
+    return [ordered[round(q * last / (limit - 1))] for q in range(limit)], True
+
+
+def _jitter(count: int, width: float) -> list[float]:
+    """Deterministic horizontal offsets in [-width/2, width/2): the fractional parts of
+    k times the golden ratio, which spread any number of points evenly (no random numbers)."""
+    golden = 0.6180339887498949
+    return [((k * golden) % 1.0 - 0.5) * width for k in range(count)]
+
+
 def _estimate_panel(ax: Any, groups: Sequence[Mapping[str, Any]], block: str, values_key: str,
-                    colour: str, label: str) -> int:
-    """Draw each group's mean and CI (and its values if present); return how many groups."""
-    drawn = 0
+                    colour: str, label: str) -> tuple[int, bool]:
+    """Draw each group's values, mean and CI; return how many means and whether any group's
+    values were thinned to quantiles."""
+    drawn, thinned = 0, False
     for i, g in enumerate(groups):
         est = g.get(block)
         mean = _num(est.get("mean")) if isinstance(est, Mapping) else None
         values = g.get(values_key)
         if isinstance(values, (list, tuple)) and values:
-            pts = [v for v in (_num(v) for v in values) if v is not None]
-            # a deterministic spread of the points so that ties stay visible
-            offsets = [((k % 7) - 3) * 0.035 for k in range(len(pts))]
-            ax.scatter([i - 0.18 + o for o in offsets], pts, s=10, color=_GREY, alpha=0.8,
-                       linewidths=0, zorder=2)
+            pts, cut = _thin([v for v in (_num(v) for v in values) if v is not None],
+                             MAX_POINTS)
+            thinned = thinned or cut
+            ax.scatter([i - 0.2 + o for o in _jitter(len(pts), 0.22)], pts, s=11,
+                       facecolors="none", edgecolors=_GREY, linewidths=0.8, zorder=2)
         if mean is None:
             continue
         lo, hi = _ci(est)
         if lo is not None and hi is not None:
-            ax.vlines(i, lo, hi, color=colour, linewidth=2.2, zorder=3)
-            ax.hlines([lo, hi], i - 0.08, i + 0.08, color=colour, linewidth=1.2, zorder=3)
-        ax.plot([i], [mean], marker="D", markersize=5.5, color=colour, zorder=4)
+            ax.vlines(i + 0.08, lo, hi, color=colour, linewidth=2.2, zorder=3)
+            ax.hlines([lo, hi], i + 0.02, i + 0.14, color=colour, linewidth=1.2, zorder=3)
+        ax.plot([i + 0.08], [mean], marker="D", markersize=5.5, color=colour, zorder=4)
         drawn += 1
     ax.set_xticks(range(len(groups)))
     ax.set_xticklabels([str(g.get("level")) for g in groups], rotation=20, ha="right")
     ax.set_xlim(-0.6, len(groups) - 0.4)
     ax.set_title(label)
     ax.grid(axis="x", visible=False)
-    return drawn
+    return drawn, thinned
 
 
 def group_estimates_figure(endpoint: Mapping[str, Any], *, salt: str) -> ReportFigure | None:
-    """Each group's mean with its confidence interval, on the original and the analysis scale.
+    """Each group's values, mean and confidence interval, on the original and the analysis
+    scale (a second panel when the analysis scale is a transformation).
 
-    Individual values are added when the endpoint carries ``groups[j].values`` (and
-    ``analysis_values`` for the analysis scale). Returns ``None`` when no group has a mean.
+    Returns ``None`` when no group has a mean.
     """
     groups = list(endpoint.get("groups") or [])
     if not any(isinstance(g.get("original"), Mapping) for g in groups):
@@ -226,28 +255,36 @@ def group_estimates_figure(endpoint: Mapping[str, Any], *, salt: str) -> ReportF
         isinstance(g.get("analysis"), Mapping) for g in groups)
     with _rc():
         fig, axes = _figure(7.2 if two else 4.6, 3.0, 2 if two else 1)
-        _estimate_panel(axes[0], groups, "original", "values", _TEAL, "Original scale")
+        _, thinned = _estimate_panel(axes[0], groups, "original", "values", _TEAL,
+                                     "Original scale")
         if two:
-            _estimate_panel(axes[1], groups, "analysis", "analysis_values", _OCHRE,
-                            f"Analysis scale ({_scale_words(scale)})")
+            _, more = _estimate_panel(axes[1], groups, "analysis", "analysis_values", _OCHRE,
+                                      _panel_title(scale))
+            thinned = thinned or more
         fig.subplots_adjust(left=0.1, right=0.98, bottom=0.28, top=0.88, wspace=0.3)
         has_values = any(isinstance(g.get("values"), (list, tuple)) and g.get("values")
                          for g in groups)
-        title = f"Group means with confidence intervals: {endpoint.get('endpoint')}"
+        title = f"Group values, means and confidence intervals: {endpoint.get('endpoint')}"
         parts = []
         for g in groups:
             o = g.get("original") if isinstance(g.get("original"), Mapping) else {}
             lo, hi = _ci(o)
-            parts.append(f"{g.get('level')}: mean {_short(_num(o.get('mean')))} "
+            parts.append(f"{g.get('level')}: n {g.get('n')}, mean {_short(_num(o.get('mean')))} "
                          f"(interval {_short(lo)} to {_short(hi)})")
         desc = "On the original scale, " + "; ".join(parts) + "."
         if two:
             desc += f" A second panel shows the same on the {_scale_words(scale)}."
         svg = _to_svg(fig, salt, title, desc)
-    caption = ("Diamonds are group means, bars their confidence intervals"
-               + ("; grey dots are the individual values" if has_values else "")
-               + ". Look for groups whose intervals do not overlap much, and, when there are "
-               "two panels, for whether the picture changes with the scale.")
+    level = next((_num(g.get("ci_level")) for g in groups if _num(g.get("ci_level"))), None)
+    pct = f"{100 * level:g}% " if level is not None else ""
+    caption = ("Diamonds are group means, bars their " + pct + "confidence intervals"
+               + ("; open grey circles beside them are the individual values, spread sideways "
+                  "only so that equal values stay visible" if has_values else "")
+               + (f" (groups of more than {MAX_POINTS} values are shown by {MAX_POINTS} evenly "
+                  "spaced quantiles)" if thinned else "")
+               + ". Look for groups whose intervals hardly overlap, for single values far from "
+               "the rest, and, when there are two panels, for whether the picture changes with "
+               "the scale.")
     return ReportFigure(key="estimates", svg=svg, title=title, desc=desc, caption=caption)
 
 
@@ -279,7 +316,7 @@ def spread_figure(endpoint: Mapping[str, Any], *, salt: str) -> ReportFigure | N
         fig, axes = _figure(7.2 if two else 4.6, 3.0, 2 if two else 1)
         panels = [(axes[0], original, _TEAL, "Original scale")]
         if two:
-            panels.append((axes[1], analysis, _OCHRE, f"Analysis scale ({_scale_words(scale)})"))
+            panels.append((axes[1], analysis, _OCHRE, _panel_title(scale)))
         for ax, pts, colour, label in panels:
             ax.scatter([p[1] for p in pts], [p[2] for p in pts], s=28, color=colour, zorder=3)
             for name, m, s in pts:
@@ -318,41 +355,88 @@ def _normal_quantiles(n: int) -> list[float]:
     return [z.inv_cdf((i - 0.375) / (n + 0.25)) for i in range(1, n + 1)]
 
 
+def residuals_of(endpoint: Mapping[str, Any]) -> tuple[list[float], str | None]:
+    """The residuals of the one-way model, groups in level order, and their scale.
+
+    Derived from results.json: each group's ``analysis_values`` (or, on the original scale,
+    its ``values``) minus their mean (``math.fsum`` / n). For a rank test the residuals are
+    those of the original values when the plan did not transform; a halted endpoint has none.
+    """
+    if endpoint.get("status") != "completed":
+        return [], None
+    groups = [g for g in endpoint.get("groups") or [] if isinstance(g, Mapping)]
+    scale = endpoint.get("analysis_scale")
+    t = endpoint.get("transform") if isinstance(endpoint.get("transform"), Mapping) else {}
+    if scale == "ranks":
+        if t.get("name") not in (None, "identity"):
+            return [], None
+        key, scale = "values", "original"
+    elif scale == "original":
+        key = "values"
+    else:
+        key = "analysis_values"
+    out: list[float] = []
+    for g in groups:
+        raw = g.get(key)
+        if not isinstance(raw, (list, tuple)):
+            return [], None
+        x = [v for v in (_num(v) for v in raw) if v is not None]
+        if not x:
+            continue
+        mean = math.fsum(x) / len(x)
+        out.extend(v - mean for v in x)
+    return out, str(scale)
+
+
 def residual_quantile_figure(endpoint: Mapping[str, Any], *, salt: str) -> ReportFigure | None:
-    """Normal quantile plot of the residuals on the analysis scale (needs ``residuals``)."""
-    raw = endpoint.get("residuals")
-    if not isinstance(raw, (list, tuple)):
-        return None
-    res = sorted(v for v in (_num(v) for v in raw) if v is not None)
-    if len(res) < 3:
-        return None
-    q = _normal_quantiles(len(res))
+    """Normal quantile plot of the residuals of the one-way model (see :func:`residuals_of`).
+
+    More than ten times :data:`MAX_POINTS` residuals are drawn as that many evenly spaced
+    order statistics, each at its own plotting position.
+    """
+    res, scale = residuals_of(endpoint)
+    res.sort()
     n = len(res)
+    if n < 3:
+        return None
+    q = _normal_quantiles(n)
     mean = sum(res) / n
     sd = math.sqrt(sum((r - mean) ** 2 for r in res) / (n - 1))  # centred sum of squares
+    limit = 10 * MAX_POINTS
+    pick = list(range(n)) if n <= limit else sorted(
+        {round(i * (n - 1) / (limit - 1)) for i in range(limit)})
+    words = _scale_words(scale) if scale != "original" else "original scale"
     with _rc():
         fig, axes = _figure(4.6, 3.2)
         ax = axes[0]
-        ax.scatter(q, res, s=14, color=_TEAL, zorder=3)
+        ax.scatter([q[i] for i in pick], [res[i] for i in pick], s=14, facecolors="none",
+                   edgecolors=_TEAL, linewidths=1.0, zorder=3)
         ends = [q[0], q[-1]]
-        ax.plot(ends, [mean + sd * e for e in ends], color=_GREY, linestyle="--", linewidth=1.0)
-        ax.set_xlabel("normal quantile")
+        ax.plot(ends, [mean + sd * e for e in ends], color=_OCHRE, linestyle="--",
+                linewidth=1.1)
+        ax.set_xlabel("normal quantile (Blom positions)")
         ax.set_ylabel("residual")
-        ax.set_title(f"Residuals ({_scale_words(endpoint.get('analysis_scale'))})")
+        ax.set_title(f"Residuals ({words})")
         fig.subplots_adjust(left=0.16, right=0.97, bottom=0.16, top=0.88)
         title = f"Normal quantile plot of residuals: {endpoint.get('endpoint')}"
-        desc = (f"{n} residuals against normal quantiles; smallest {res[0]:.4g}, largest "
-                f"{res[-1]:.4g}, standard deviation {sd:.4g}.")
+        desc = (f"{n} residuals on the {words} against normal quantiles; smallest "
+                f"{res[0]:.4g}, largest {res[-1]:.4g}, standard deviation {sd:.4g}."
+                + (f" {len(pick)} evenly spaced order statistics are drawn." if n > limit
+                   else ""))
         svg = _to_svg(fig, salt, title, desc)
-    caption = ("Points close to the dashed line are what normally distributed residuals look "
-               "like; a bend at the ends points to skew or heavy tails.")
+    caption = ("Each circle is one value minus its group mean, against the quantile a normal "
+               "distribution would put there; the dashed line is where normally distributed "
+               "residuals with this spread would lie. Look at the ends: a curve bending away "
+               "from the line points to skew or heavy tails, which the normality check "
+               "summarises in one p-value.")
     return ReportFigure(key="residuals", svg=svg, title=title, desc=desc, caption=caption)
 
 
 def boxcox_profile_figure(endpoint: Mapping[str, Any], *, salt: str) -> ReportFigure | None:
-    """The Box-Cox profile log-likelihood with the chosen lambda and its interval.
+    """The Box-Cox profile log-likelihood with the estimate, the lambda used and the interval.
 
-    Needs ``transform.profile`` (``lambda`` and ``loglik`` lists of equal length).
+    Needs ``transform.profile`` (``lambda`` and ``loglik`` lists of equal length; optional
+    ``cutoff``, the log-likelihood the interval ends on).
     """
     t = endpoint.get("transform")
     if not isinstance(t, Mapping) or t.get("name") != "boxcox":
@@ -368,26 +452,51 @@ def boxcox_profile_figure(endpoint: Mapping[str, Any], *, salt: str) -> ReportFi
     if len(pts) < 3:
         return None
     chosen = _num(t.get("lambda"))
+    estimate = _num(t.get("lambda_estimate"))
+    cutoff = _num(profile.get("cutoff"))
+    peak = _num(profile.get("loglik_max"))
     lo, hi = _ci(t, "lambda_ci")
+    level = _num(profile.get("confidence_level"))
+    pct = f"{100 * level:g}% " if level is not None else ""
+    top = max(b for _, b in pts) if peak is None else max(peak, max(b for _, b in pts))
+    # show the neighbourhood of the peak: down to four times the interval's depth (the curve
+    # leaves the panel beyond it)
+    depth = (top - cutoff) if cutoff is not None and top > cutoff else 2.0
+    bottom = max(min(b for _, b in pts), top - 4.5 * depth)
     with _rc():
-        fig, axes = _figure(4.6, 3.0)
+        fig, axes = _figure(5.4, 3.2)
         ax = axes[0]
-        ax.plot([p[0] for p in pts], [p[1] for p in pts], color=_TEAL)
         if lo is not None and hi is not None:
-            ax.axvspan(lo, hi, color=_PALE, zorder=0)
+            ax.axvspan(lo, hi, color=_PALE, zorder=0, linewidth=0)
+        ax.plot([p[0] for p in pts], [p[1] for p in pts], color=_TEAL, zorder=3)
+        if cutoff is not None:
+            ax.axhline(cutoff, color=_GREY, linestyle=":", linewidth=1.1, zorder=2)
+            ax.annotate(f"{pct}cut-off", (pts[0][0], cutoff), textcoords="offset points",
+                        xytext=(2, 3), fontsize=7.5, color=_INK)
+        if estimate is not None:
+            ax.axvline(estimate, color=_TEAL, linewidth=1.0, zorder=2)
+            ax.annotate(f"estimate {estimate:.3g}", (estimate, top),
+                        textcoords="offset points", xytext=(4, -10), fontsize=7.5, color=_TEAL)
         if chosen is not None:
-            ax.axvline(chosen, color=_OCHRE, linestyle="--", linewidth=1.2)
-        ax.set_xlabel("lambda")
+            ax.axvline(chosen, color=_OCHRE, linestyle="--", linewidth=1.4, zorder=2)
+            ax.annotate(f"used {chosen:.3g}", (chosen, bottom), textcoords="offset points",
+                        xytext=(4, 4), fontsize=7.5, color=_OCHRE)
+        ax.set_ylim(bottom - 0.04 * (top - bottom), top + 0.12 * (top - bottom))
+        ax.set_xlim(pts[0][0], pts[-1][0])
+        ax.set_xlabel("lambda (Box-Cox power)")
         ax.set_ylabel("profile log-likelihood")
-        ax.set_title("Box-Cox profile")
-        fig.subplots_adjust(left=0.17, right=0.97, bottom=0.17, top=0.88)
+        ax.set_title("Box-Cox profile under the one-way model")
+        fig.subplots_adjust(left=0.15, right=0.97, bottom=0.16, top=0.88)
         title = f"Box-Cox profile log-likelihood: {endpoint.get('endpoint')}"
-        desc = (f"The chosen lambda is {_short(chosen)}; its interval runs from {_short(lo)} "
-                f"to {_short(hi)}.")
+        desc = (f"The profile log-likelihood of lambda peaks at the estimate {_short(estimate)}; "
+                f"its {pct}interval runs from {_short(lo)} to {_short(hi)}, where the curve "
+                f"crosses the cut-off {_short(cutoff)}; the lambda used is {_short(chosen)}.")
         svg = _to_svg(fig, salt, title, desc)
-    caption = ("The curve peaks at the lambda the data favour; the shaded band is its interval "
-               "and the dashed line the lambda used. A wide band means the data say little "
-               "about the scale.")
+    caption = ("The curve shows how well each power makes the groups look normal with equal "
+               "spread; it peaks at the estimate (solid line). The shaded band is the "
+               "interval, where the curve stays above the dotted cut-off; the dashed line is "
+               "the lambda used, an interpretable value inside the band when the plan snaps. "
+               "A wide band means the data say little about the scale.")
     return ReportFigure(key="boxcox", svg=svg, title=title, desc=desc, caption=caption)
 
 
@@ -469,29 +578,33 @@ def comparisons_figure(endpoint: Mapping[str, Any], *, salt: str) -> ReportFigur
 
 def endpoint_figures(endpoint: Mapping[str, Any], *, index: int) -> tuple[list[ReportFigure],
                                                                            list[str]]:
-    """All figures of one endpoint, and a plain note for each figure that could not be drawn.
+    """All figures of one endpoint, and a plain note for each promised figure not drawn.
 
     ``index`` (the endpoint's position) makes every figure's ids unique within a page.
     """
     figures: list[ReportFigure] = []
-    missing: list[str] = []
+    notes: list[str] = []
     makers = (
-        ("estimates", group_estimates_figure, None),
-        ("spread", spread_figure, None),
-        ("residuals", residual_quantile_figure,
-         "The normal quantile plot of residuals is not drawn: results.json does not carry the "
-         "residuals."),
-        ("boxcox", boxcox_profile_figure, None),
-        ("comparisons", comparisons_figure, None),
+        ("estimates", group_estimates_figure),
+        ("spread", spread_figure),
+        ("residuals", residual_quantile_figure),
+        ("boxcox", boxcox_profile_figure),
+        ("comparisons", comparisons_figure),
     )
-    t = endpoint.get("transform")
-    for key, make, note in makers:
+    t = endpoint.get("transform") if isinstance(endpoint.get("transform"), Mapping) else {}
+    halted = endpoint.get("status") != "completed"
+    for key, make in makers:
         fig = make(endpoint, salt=f"planrunner-e{index}-{key}")
         if fig is not None:
             figures.append(fig)
-        elif note is not None and endpoint.get("status") == "completed":
-            missing.append(note)
-        elif key == "boxcox" and isinstance(t, Mapping) and t.get("name") == "boxcox":
-            missing.append("The Box-Cox profile is not drawn: results.json does not carry the "
-                           "profile log-likelihood.")
-    return figures, missing
+        elif key == "residuals" and halted:
+            notes.append("No normal quantile plot of residuals: the plan halted for this "
+                         "endpoint before its analysis.")
+        elif key == "residuals" and endpoint.get("analysis_scale") == "ranks":
+            notes.append("No normal quantile plot of residuals: the rank test analyses ranks "
+                         "of transformed values, which results.json does not hold.")
+        elif key == "residuals":
+            notes.append("No normal quantile plot of residuals: fewer than three residuals.")
+        elif key == "boxcox" and t.get("name") == "boxcox":
+            notes.append("No Box-Cox profile: the lambda was not estimated for this endpoint.")
+    return figures, notes

@@ -300,33 +300,6 @@ def md_slug(text: str) -> str:
     return slug.replace(" ", "-")
 
 
-def _alternative(record: Mapping[str, Any], remaining_rungs: Sequence[str]) -> str | None:
-    """The branch of the plan's tree that this decision turned away from, in a few words."""
-    stage, outcome = record.get("stage"), record.get("outcome")
-    ref = str(record.get("plan_ref") or "")
-    action = str(record.get("action") or "")
-    descriptive = ref.endswith(".role") or "reported only" in action or \
-        "recorded for the report" in action
-    if stage in ("check_assumptions", "transform", "final_checks") and not descriptive:
-        if outcome == "failed":
-            return "if passed: analyse this scale"
-        if outcome == "passed":
-            if remaining_rungs:
-                return "if failed: next rung (" + ", ".join(remaining_rungs) + ")"
-            return "if failed: next rung or the fallback rule"
-    if stage == "omnibus":
-        if outcome == "significant":
-            return "if not significant: no difference shown"
-        if outcome == "not_significant":
-            return "if significant: difference shown"
-    if stage == "follow_ups":
-        if outcome == "performed":
-            return "if not made: no comparisons"
-        if outcome == "skipped":
-            return "if made: pairwise intervals"
-    return None
-
-
 def _path_token(record: Mapping[str, Any]) -> str | None:
     """One step of the path taken, as the overview shows it (None: not part of the path)."""
     stage, outcome, method = record.get("stage"), record.get("outcome"), record.get("method")
@@ -353,86 +326,19 @@ def _path_token(record: Mapping[str, Any]) -> str | None:
     return None
 
 
-def _node_lines(record: Mapping[str, Any]) -> tuple[str, str]:
-    stage = record.get("stage")
-    method = record.get("method")
-    title = STAGE_LABELS.get(str(stage), outcome_words(stage))
-    if method and stage not in ("conclude",):
-        title = f"{title}: {short_label(method)}"
-    detail = outcome_words(record.get("outcome"))
-    p = _finite(record.get("p"))
-    if p is not None and stage != "across_endpoints":
-        detail += f", p = {fmt_p(p)}"
-    elif stage == "across_endpoints" and p is not None:
-        detail += f", adjusted p = {fmt_p(p)}"
-    return _clip(title, 44), _clip(detail, 46)
+def decision_path_layout(endpoint: Mapping[str, Any], records: Sequence[Mapping[str, Any]],
+                         settings: Mapping[str, Any]) -> dict[str, Any]:
+    """Coordinates of the decision-path drawing: the plan's tree, the path taken highlighted
+    (see :func:`planrunner.report.tree.plan_tree_layout`)."""
+    from .tree import plan_tree_layout
 
-
-def _clip(text: str, n: int) -> str:
-    return text if len(text) <= n else text[: n - 1] + "…"
-
-
-def decision_path_layout(records: Sequence[Mapping[str, Any]],
-                         remaining_rungs: Sequence[str] = ()) -> dict[str, Any]:
-    """Coordinates of the decision-path drawing: one row per recorded decision.
-
-    The path taken runs down the middle column (each node links to its log record); where
-    the plan's tree had another branch at that point, a muted node to the right names it.
-    """
-    row_h, node_h = 60, 44
-    x_label, x_node, w_node = 8, 158, 300
-    x_alt, w_alt = 488, 264
-    rows = []
-    y = 16
-    decisions = [r for r in records if r.get("kind") == "decision"]
-    last_transform = max((i for i, r in enumerate(decisions)
-                          if r.get("stage") == "transform"), default=None)
-    for i, r in enumerate(decisions):
-        title, detail = _node_lines(r)
-        rungs = remaining_rungs if i == last_transform else ()
-        alt = _alternative(r, rungs)
-        rows.append({
-            "seq": r.get("seq"),
-            "stage": STAGE_LABELS.get(str(r.get("stage")), outcome_words(r.get("stage"))),
-            "title": title,
-            "detail": detail,
-            "reason": str(r.get("reason") or ""),
-            "alt": _clip(alt, 44) if alt else None,
-            "y": y,
-            "mid": y + node_h / 2,
-        })
-        y += row_h
-    return {
-        "rows": rows,
-        "width": x_alt + w_alt + 8,
-        "height": max(y - row_h + node_h + 16, 60),
-        "node_h": node_h,
-        "x_label": x_label,
-        "x_node": x_node,
-        "w_node": w_node,
-        "x_alt": x_alt,
-        "w_alt": w_alt,
-        "x_mid": x_node + w_node / 2,
-    }
+    return plan_tree_layout(endpoint, records, settings)
 
 
 def _settings(results: Mapping[str, Any]) -> Mapping[str, Any]:
     plan = results.get("plan")
     settings = plan.get("settings") if isinstance(plan, Mapping) else None
     return settings if isinstance(settings, Mapping) else {}
-
-
-def _remaining_rungs(endpoint: Mapping[str, Any], settings: Mapping[str, Any]) -> list[str]:
-    transform = settings.get("transform")
-    if not isinstance(transform, Mapping) or transform.get("policy") != "ladder":
-        return []
-    ladder = [str(x) for x in transform.get("ladder") or []]
-    t = endpoint.get("transform") if isinstance(endpoint.get("transform"), Mapping) else {}
-    tried = [str(x) for x in t.get("tried") or []]
-    if not tried:
-        return []
-    last = ladder.index(tried[-1]) if tried[-1] in ladder else len(ladder)
-    return [short_label(x) for x in ladder[last + 1:]]
 
 
 def _back_label(endpoint: Mapping[str, Any]) -> str:
@@ -474,7 +380,7 @@ def _endpoint_view(i: int, endpoint: Mapping[str, Any], records: list[dict[str, 
         "first_seq": decisions[0].get("seq") if decisions else None,
         "path_tokens": tokens,
         "path_text": " → ".join(tokens) if tokens else "—",
-        "layout": decision_path_layout(records, _remaining_rungs(endpoint, settings)),
+        "layout": decision_path_layout(endpoint, records, settings),
         "test": label(omnibus.get("method")) if omnibus else "—",
         "test_short": short_label(omnibus.get("method")) if omnibus else "—",
         "omnibus": omnibus,

@@ -8,7 +8,8 @@ bytes and ``planrunner verify`` can compare them. Its top-level keys are:
     ``"planrunner.results/1"``.
 ``plan``
     ``id``, ``revision``, ``title``, ``question``, ``fingerprint`` (SHA-256 of the validated
-    plan) and ``raw_sha256`` (SHA-256 of the plan file's bytes).
+    plan), ``raw_sha256`` (SHA-256 of the plan file's bytes) and ``settings`` (the
+    decision-relevant settings the report draws the plan's tree from; :func:`plan_settings`).
 ``data``
     The data file as it was named (the plan's ``data.file``, or the ``--data`` value), its
     SHA-256, format, rows read, blank rows, every excluded row or cell with its reason, and per
@@ -47,6 +48,7 @@ __all__ = [
     "RESULTS_NAME",
     "build_results",
     "compare_results",
+    "plan_settings",
     "results_bytes",
 ]
 
@@ -128,6 +130,33 @@ def _plan_section(plan: LoadedPlan) -> dict[str, Any]:
         "question": model.question,
         "fingerprint": plan.fingerprints.plan,
         "raw_sha256": plan.fingerprints.raw,
+        "settings": plan_settings(model),
+    }
+
+
+def plan_settings(model: Any) -> dict[str, Any]:
+    """The decision-relevant part of the validated plan, as the report draws its tree.
+
+    A compact copy (defaults filled in) of the settings that decide an endpoint's path:
+    ``alpha``, ``compare``, ``omnibus``, ``when_variances_differ``, ``degenerate_groups`` and
+    the sections ``outliers``, ``variance_check``, ``normality_check``, ``transform`` and
+    ``comparisons``. The whole plan is in plan.resolved.yaml beside results.json.
+    """
+
+    def section(value: Any) -> dict[str, Any]:
+        return value.model_dump(mode="json")
+
+    return {
+        "alpha": model.alpha,
+        "compare": model.compare,
+        "omnibus": model.omnibus,
+        "when_variances_differ": model.when_variances_differ,
+        "degenerate_groups": model.data.degenerate_groups,
+        "outliers": section(model.outliers),
+        "variance_check": section(model.variance_check),
+        "normality_check": section(model.normality_check),
+        "transform": section(model.transform),
+        "comparisons": section(model.comparisons),
     }
 
 

@@ -35,7 +35,13 @@ from .effect import EffectSizes, effect_sizes
 from .hartley import FmaxResult, hartley_fmax
 from .normality import ShapiroResult, shapiro_wilk
 from .power import AnovaPower, AnovaSampleSize, anova_power, anova_sample_size
-from .summary import GroupSummary, describe_groups, residuals
+from .summary import (
+    GroupSummary,
+    StudentizedResiduals,
+    describe_groups,
+    residuals,
+    studentized_residuals,
+)
 from .transforms import TRANSFORMS, Transform, get_transform
 from .variance import VarianceTestResult, bartlett, fligner_killeen, levene
 
@@ -57,6 +63,7 @@ __all__ = [
     "OnewayResult",
     "ShapiroResult",
     "StatsError",
+    "StudentizedResiduals",
     "TRANSFORMS",
     "Transform",
     "VarianceTestResult",
@@ -89,6 +96,7 @@ __all__ = [
     "studentized_range_cdf",
     "studentized_range_ppf",
     "studentized_range_sf",
+    "studentized_residuals",
     "tukey_kramer",
     "welch_anova",
 ]

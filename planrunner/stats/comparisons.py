@@ -48,36 +48,6 @@ def _srange_ppf(p: float, k: int, df: np.ndarray) -> np.ndarray:
     return np.asarray(studentized_range_ppf(p, k, df), dtype=np.float64)
 
 
-_CHEB_NODES = 48
-_CHEB_TAIL_RTOL = 1e-13
-
-
-def _srange_ppf_many(p: float, k: int, df: np.ndarray) -> np.ndarray:
-    """Studentized-range quantiles at many distinct df (Games-Howell critical values).
-
-    The quantile is a smooth (analytic) function of 1/df, so with many distinct df it is
-    interpolated on Chebyshev points in 1/df spanning the df observed, from exact quantiles at
-    the nodes. The interpolant is used only when its trailing coefficients are below 1e-13
-    relative (spectral convergence: the interpolation error is then ~1e-13 relative, measured
-    at 2e-15 for df in [7, 14] and 1e-13 for df in [1, 1e4], k = 4); otherwise, and for few
-    distinct df, every quantile is computed directly.
-    """
-    from numpy.polynomial import chebyshev
-
-    df = np.asarray(df, dtype=np.float64)
-    if np.unique(df).size <= _CHEB_NODES:
-        return _srange_ppf(p, k, df)
-    a, b = 1.0 / df.max(), 1.0 / df.min()
-    x = np.cos(np.pi * (np.arange(_CHEB_NODES) + 0.5) / _CHEB_NODES)
-    nodes = 0.5 * (a + b) + 0.5 * (b - a) * x
-    with np.errstate(divide="ignore"):
-        values = _srange_ppf(p, k, 1.0 / nodes)
-    coef = chebyshev.chebfit(x, values, _CHEB_NODES - 1)
-    if np.abs(coef[-4:]).max() > _CHEB_TAIL_RTOL * np.abs(coef[0]):
-        return _srange_ppf(p, k, df)
-    return chebyshev.chebval((2.0 / df - (a + b)) / (b - a), coef)
-
-
 def _dunnett_pvalues(
     t: np.ndarray, n_control: int, n_treatments: tuple[int, ...], df: float, alternative: str
 ) -> np.ndarray:
@@ -143,6 +113,9 @@ class Comparisons:
         p-value are NaN there only.
     reason : ndarray of str, shape (..., n_pairs)
         Why a comparison is not computable, in one sentence; ``""`` where it is.
+    rejected : ndarray of bool, shape (..., n_pairs), or None
+        With ``alpha=`` given: True where the comparison is significant at alpha, that is
+        where ``pvalue_adjusted <= alpha`` (False where not computable); None otherwise.
     """
 
     method: str
@@ -161,6 +134,7 @@ class Comparisons:
     interval: str
     computable: np.ndarray
     reason: np.ndarray
+    rejected: np.ndarray | None = None
 
 
 # --------------------------------------------------------------------------------------------
@@ -178,6 +152,51 @@ def _validate_confidence(confidence_level: float) -> float:
     if not 0.0 < cl < 1.0:
         raise InputError(f"confidence_level must lie strictly between 0 and 1; got {cl!r}")
     return cl
+
+
+def _validate_alpha(alpha: float | None) -> float | None:
+    if alpha is None:
+        return None
+    try:
+        a = float(alpha)
+    except (TypeError, ValueError):
+        raise InputError(f"alpha must be a number between 0 and 1; got {alpha!r}") from None
+    if not 0.0 < a < 1.0:
+        raise InputError(f"alpha must lie strictly between 0 and 1; got {a!r}")
+    return a
+
+
+def _validate_route(alpha: float | None, pvalues: bool) -> float | None:
+    level = _validate_alpha(alpha)
+    if not pvalues and level is None:
+        raise InputError("pvalues=False decides by critical values and needs alpha")
+    return level
+
+
+#: With pvalues=False, statistics within this relative distance of the critical value get
+#: their p-value computed, and the decision p <= alpha is taken from it.
+_NEAR = 1e-8
+
+
+def _decide(x: np.ndarray, crit: np.ndarray, ok: np.ndarray, level: float,
+            pvalue_of) -> tuple[np.ndarray, np.ndarray]:
+    """Rejections at ``level`` from the critical value, and the p-values computed near it.
+
+    The adjusted p-value is a continuous decreasing function of the statistic x that equals
+    ``level`` at the critical value, so ``p <= level`` exactly when ``x >= crit``. Both are
+    computed numerically (to about 1e-13 relative); where x lies within a relative 1e-8 of
+    crit the p-value itself is computed and decides, so the two routes give the same
+    rejections unless the numerical error exceeds that margin.
+    """
+    xs = np.where(ok, x, -np.inf)
+    cs = np.broadcast_to(crit, ok.shape)
+    rejected = ok & (xs >= cs)
+    near = ok & (np.abs(xs - cs) <= _NEAR * np.abs(cs))
+    p = np.full(ok.shape, np.nan)
+    if near.any():
+        p[near] = pvalue_of(near)
+        rejected = np.where(near, p <= level, rejected)
+    return rejected, p
 
 
 def _all_pairs(k: int) -> tuple[tuple[int, int], ...]:
@@ -258,6 +277,7 @@ def _finish(
     p,
     lower=True,
     upper=True,
+    rejected=None,
 ) -> Comparisons:
     ok = parts["computable"]
     diff, se = parts["difference"], parts["se"]
@@ -282,6 +302,7 @@ def _finish(
         interval=interval,
         computable=np.array(ok, dtype=bool),
         reason=parts["reason"],
+        rejected=None if rejected is None else np.array(rejected, dtype=bool),
     )
 
 
@@ -290,7 +311,8 @@ def _finish(
 # --------------------------------------------------------------------------------------------
 
 
-def tukey_kramer(*groups: np.ndarray, confidence_level: float = 0.95) -> Comparisons:
+def tukey_kramer(*groups: np.ndarray, confidence_level: float = 0.95,
+                 alpha: float | None = None, pvalues: bool = True) -> Comparisons:
     """All pairwise comparisons with the Tukey-Kramer procedure (pooled variance).
 
     Parameters
@@ -299,6 +321,14 @@ def tukey_kramer(*groups: np.ndarray, confidence_level: float = 0.95) -> Compari
         Two or more groups; the leading axes are a batch and must broadcast.
     confidence_level : float, optional
         Simultaneous coverage of the intervals, default 0.95.
+    alpha : float, optional
+        When given, ``rejected`` holds which comparisons are significant at alpha
+        (``pvalue_adjusted <= alpha``).
+    pvalues : bool, optional
+        Default True. False (needs ``alpha``): decide ``rejected`` by comparing the statistic
+        with the critical value at alpha, which gives the same rejections, and compute
+        adjusted p-values only for statistics within a relative 1e-8 of that critical value
+        (NaN elsewhere). For simulations that count decisions.
 
     Returns
     -------
@@ -325,6 +355,7 @@ def tukey_kramer(*groups: np.ndarray, confidence_level: float = 0.95) -> Compari
        comparisons procedure is conservative. Annals of Statistics 12, 61-75.
     """
     cl = _validate_confidence(confidence_level)
+    level = _validate_route(alpha, pvalues)
     m, df = _validate_pooled(groups, "Tukey-Kramer")
     k = m.n.size
     pairs = _all_pairs(k)
@@ -332,7 +363,14 @@ def tukey_kramer(*groups: np.ndarray, confidence_level: float = 0.95) -> Compari
     ok = parts["computable"]
     # p = P(Q_{k, df} > sqrt(2) |t|), Kramer (1956).
     q = _SQRT2 * np.abs(parts["statistic"])
-    p = _masked(lambda qq, dd: _srange_sf(qq, k, dd), ok, q, parts["df"])
+    rejected = None
+    if pvalues:
+        p = _masked(lambda qq, dd: _srange_sf(qq, k, dd), ok, q, parts["df"])
+        if level is not None:
+            rejected = ok & (np.nan_to_num(p, nan=1.0) <= level)
+    else:
+        rejected, p = _decide(q, _srange_ppf(1.0 - level, k, np.float64(df)), ok, level,
+                              lambda near: _srange_sf(q[near], k, df))
     crit = _srange_ppf(cl, k, np.float64(df)) / _SQRT2
     return _finish(
         method="tukey_kramer",
@@ -344,6 +382,7 @@ def tukey_kramer(*groups: np.ndarray, confidence_level: float = 0.95) -> Compari
         alternative="two-sided",
         interval="simultaneous intervals (Tukey-Kramer; exact for equal n, conservative otherwise)",
         p=p,
+        rejected=rejected,
     )
 
 
@@ -355,7 +394,8 @@ def tukey_kramer(*groups: np.ndarray, confidence_level: float = 0.95) -> Compari
 _GH_ZERO = "one of the two groups has zero variance, so the Games-Howell comparison is undefined"
 
 
-def games_howell(*groups: np.ndarray, confidence_level: float = 0.95) -> Comparisons:
+def games_howell(*groups: np.ndarray, confidence_level: float = 0.95,
+                 alpha: float | None = None, pvalues: bool = True) -> Comparisons:
     """All pairwise comparisons with the Games-Howell procedure (no equal-variance assumption).
 
     Parameters
@@ -364,6 +404,14 @@ def games_howell(*groups: np.ndarray, confidence_level: float = 0.95) -> Compari
         Two or more groups of at least two values each; the leading axes are a batch.
     confidence_level : float, optional
         Nominal simultaneous coverage of the intervals, default 0.95.
+    alpha : float, optional
+        When given, ``rejected`` holds which comparisons are significant at alpha
+        (``pvalue_adjusted <= alpha``).
+    pvalues : bool, optional
+        Default True. False (needs ``alpha``): decide ``rejected`` by comparing the statistic
+        with the critical value at alpha, which gives the same rejections, and compute
+        adjusted p-values only for statistics within a relative 1e-8 of that critical value
+        (NaN elsewhere). For simulations that count decisions.
 
     Returns
     -------
@@ -387,6 +435,7 @@ def games_howell(*groups: np.ndarray, confidence_level: float = 0.95) -> Compari
        Statistics 1, 113-125.
     """
     cl = _validate_confidence(confidence_level)
+    level = _validate_route(alpha, pvalues)
     arrays, _ = as_groups(groups, min_groups=2, min_n=2, name="Games-Howell")
     m = group_moments(arrays)
     k = m.n.size
@@ -415,8 +464,19 @@ def games_howell(*groups: np.ndarray, confidence_level: float = 0.95) -> Compari
         "reason": reason,
     }
     q = _SQRT2 * np.abs(stat)
-    p = _masked(lambda qq, dd: _srange_sf(qq, k, dd), ok, q, dfs)
-    crit = _masked(lambda dd: _srange_ppf_many(cl, k, dd), ok, dfs) / _SQRT2
+    q_ci = _masked(lambda dd: _srange_ppf(cl, k, dd), ok, dfs)
+    rejected = None
+    if pvalues:
+        p = _masked(lambda qq, dd: _srange_sf(qq, k, dd), ok, q, dfs)
+        if level is not None:
+            rejected = ok & (np.nan_to_num(p, nan=1.0) <= level)
+    else:
+        # the critical q of each pair's own df (the interval's when confidence = 1 - alpha)
+        q_crit = q_ci if 1.0 - level == cl else _masked(
+            lambda dd: _srange_ppf(1.0 - level, k, dd), ok, dfs)
+        rejected, p = _decide(q, q_crit, ok, level,
+                              lambda near: _srange_sf(q[near], k, dfs[near]))
+    crit = q_ci / _SQRT2
     return _finish(
         method="games_howell",
         pairs=pairs,
@@ -427,6 +487,7 @@ def games_howell(*groups: np.ndarray, confidence_level: float = 0.95) -> Compari
         alternative="two-sided",
         interval="simultaneous intervals, approximate (Games-Howell)",
         p=p,
+        rejected=rejected,
     )
 
 
@@ -435,6 +496,7 @@ def games_howell(*groups: np.ndarray, confidence_level: float = 0.95) -> Compari
 # --------------------------------------------------------------------------------------------
 
 _ADJUSTMENTS = ("bonferroni", "holm", "sidak")
+_ALTERNATIVES = ("two-sided", "less", "greater")
 
 
 def _pvalue_adjust(p: np.ndarray, adjust: str) -> np.ndarray:
@@ -457,38 +519,104 @@ def _pvalue_adjust(p: np.ndarray, adjust: str) -> np.ndarray:
     return out
 
 
+def _validate_alternative(alternative: str) -> str:
+    if alternative not in _ALTERNATIVES:
+        raise InputError(
+            f"alternative {alternative!r} is not allowed; use one of {', '.join(_ALTERNATIVES)}"
+        )
+    return alternative
+
+
+def _validate_control(control: object, k: int) -> int:
+    if isinstance(control, bool) or not isinstance(control, (int, np.integer)):
+        raise InputError(f"control must be a group index (an integer); got {control!r}")
+    if not 0 <= int(control) < k:
+        raise InputError(f"control {control!r} is not a group index; use 0 to {k - 1}")
+    return int(control)
+
+
+_WELCH_ZERO = "both groups of the pair have zero variance, so the Welch t test is undefined"
+
+
+def _welch_pairs(m: Moments, pairs) -> dict[str, np.ndarray]:
+    """Differences, Welch standard errors, t statistics and Welch-Satterthwaite df per pair."""
+    a = np.array([p[0] for p in pairs])
+    b = np.array([p[1] for p in pairs])
+    diff = _differences(m, a, b)
+    w = m.var / m.n                                   # s_i^2 / n_i, centred sums
+    wa, wb = w[..., a], w[..., b]
+    ok, reason = flag_cases(diff.shape, ((wa + wb) == 0.0, _WELCH_ZERO))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        # Welch (1947): se = sqrt(s_a^2/n_a + s_b^2/n_b); Satterthwaite (1946) df.
+        se = np.where(ok, np.sqrt(wa + wb), np.nan)
+        stat = np.where(ok, diff / se, np.nan)
+        dfs = np.where(
+            ok, (wa + wb) ** 2 / (wa**2 / (m.n[a] - 1) + wb**2 / (m.n[b] - 1)), np.nan
+        )
+    return {
+        "difference": diff,
+        "se": se,
+        "statistic": stat,
+        "df": dfs,
+        "computable": ok,
+        "reason": reason,
+    }
+
+
 def pairwise_t(
     *groups: np.ndarray,
     adjust: Literal["bonferroni", "holm", "sidak"] = "bonferroni",
     confidence_level: float = 0.95,
+    pairs: Literal["all", "control"] = "all",
+    control: int = 0,
+    error_term: Literal["pooled", "per_pair"] = "pooled",
+    alternative: Literal["two-sided", "less", "greater"] = "two-sided",
+    alpha: float | None = None,
 ) -> Comparisons:
-    """All pairwise t tests on the pooled within-group variance, with a multiplicity adjustment.
+    """Pairwise t tests, all pairs or each group against a control, with a multiplicity adjustment.
 
     Parameters
     ----------
     *groups : array_like, each shaped (..., n_i)
         Two or more groups; the leading axes are a batch.
     adjust : {"bonferroni", "holm", "sidak"}
-        How the m = k(k-1)/2 raw p-values are adjusted. ``"holm"`` is Holm's step-down
+        How the m raw p-values of the family are adjusted. ``"holm"`` is Holm's step-down
         procedure (not Holm-Sidak).
     confidence_level : float, optional
         Default 0.95.
+    pairs : {"all", "control"}
+        ``"all"``: the m = k(k-1)/2 pairs ``(0, 1), ..., (k-2, k-1)``; ``"control"``: the
+        m = k - 1 pairs ``(i, control)`` for every ``i != control`` in increasing ``i``
+        (differences are then treatment minus control).
+    control : int, optional
+        Index of the control group when ``pairs="control"``, default 0.
+    error_term : {"pooled", "per_pair"}
+        ``"pooled"``: one within-group variance pooled over all k groups, df = N - k;
+        ``"per_pair"``: Welch's t for each pair from the two groups' own variances, with the
+        Welch-Satterthwaite df of the pair (groups need two or more values).
+    alternative : {"two-sided", "less", "greater"}
+        ``"greater"``: ``mean_a > mean_b`` is the alternative (raw p = P(T > t)); ``"less"``:
+        ``mean_a < mean_b``. One-sided intervals are infinite on one side.
+    alpha : float, optional
+        When given, ``rejected`` holds ``pvalue_adjusted <= alpha``.
 
     Returns
     -------
     Comparisons
-        Pairs ``(0, 1), ..., (k-2, k-1)``; ``difference = mean_a - mean_b``.
+        ``difference = mean_a - mean_b``.
 
     Notes
     -----
-    Assumptions: independent observations, normal errors, equal variances. Each pair uses
-    ``t = difference / sqrt(MSw (1/n_a + 1/n_b))`` with MSw pooled over all k groups and
-    df = N - k; the raw p-value is two-sided. Intervals: for ``"bonferroni"`` each interval
-    has level ``1 - alpha/m`` and for ``"sidak"`` ``(1 - alpha)^(1/m)``, with
-    ``alpha = 1 - confidence_level``; both are simultaneous. Holm's step-down procedure has
-    no simple simultaneous interval, so for ``"holm"`` the intervals are the Bonferroni-level
-    ones (simultaneous, but they do not match Holm's more powerful decisions: a pair can be
-    significant by Holm while its interval covers zero). ``interval`` records this.
+    Assumptions: independent observations, normal errors; equal variances for the pooled
+    error term. Each pair uses ``t = difference / se`` with ``se = sqrt(MSw (1/n_a + 1/n_b))``
+    (pooled) or ``sqrt(s_a^2/n_a + s_b^2/n_b)`` (per pair). Intervals: for ``"bonferroni"``
+    each interval has level ``1 - alpha/m`` and for ``"sidak"`` ``(1 - alpha)^(1/m)``, with
+    ``alpha = 1 - confidence_level``; both are simultaneous (exactly so for the pooled error
+    term, approximately with Welch's df). Holm's step-down procedure has no simple
+    simultaneous interval, so for ``"holm"`` the intervals are the Bonferroni-level ones
+    (they do not match Holm's more powerful decisions: a pair can be significant by Holm
+    while its interval covers zero). ``interval`` records this. A comparison that is not
+    computable counts as raw p = 1 in the adjustment.
 
     References
     ----------
@@ -496,43 +624,74 @@ def pairwise_t(
        Scandinavian Journal of Statistics 6, 65-70.
     .. [2] Sidak, Z. (1967). Rectangular confidence regions for the means of multivariate
        normal distributions. JASA 62, 626-633.
+    .. [3] Welch, B. L. (1947). The generalization of 'Student's' problem when several
+       different population variances are involved. Biometrika 34, 28-35.
     """
     from scipy import special
 
     cl = _validate_confidence(confidence_level)
     if adjust not in _ADJUSTMENTS:
         raise InputError(f"adjust {adjust!r} is not allowed; use one of {', '.join(_ADJUSTMENTS)}")
-    m, df = _validate_pooled(groups, "pairwise t")
-    pairs = _all_pairs(m.n.size)
-    n_pairs = len(pairs)
-    parts = _pooled_pairs(m, df, pairs)
+    if pairs not in ("all", "control"):
+        raise InputError(f"pairs {pairs!r} is not allowed; use one of all, control")
+    if error_term not in ("pooled", "per_pair"):
+        raise InputError(f"error_term {error_term!r} is not allowed; use one of pooled, per_pair")
+    _validate_alternative(alternative)
+    level = _validate_alpha(alpha)
+    if error_term == "pooled":
+        m, df = _validate_pooled(groups, "pairwise t")
+    else:
+        arrays, _ = as_groups(groups, min_groups=2, min_n=2, name="Welch pairwise t")
+        m = group_moments(arrays)
+    k = m.n.size
+    if pairs == "all":
+        family = _all_pairs(k)
+    else:
+        c = _validate_control(control, k)
+        family = tuple((i, c) for i in range(k) if i != c)
+    n_pairs = len(family)
+    parts = _pooled_pairs(m, df, family) if error_term == "pooled" else _welch_pairs(m, family)
     ok = parts["computable"]
-    # Two-sided raw p-value 2 P(T_df > |t|); stdtr is the Student t cdf.
-    raw = _masked(lambda tt: 2.0 * special.stdtr(df, -np.abs(tt)), ok, parts["statistic"])
-    p = np.where(ok, _pvalue_adjust(np.where(ok, raw, 1.0), adjust), np.nan)
-    alpha = 1.0 - cl
+    dfs = parts["df"]
+    # Raw p-values from the Student t distribution (stdtr is its cdf): two-sided
+    # 2 P(T_df > |t|), "greater" P(T_df > t), "less" P(T_df < t).
+    if alternative == "two-sided":
+        raw = _masked(lambda tt, dd: 2.0 * special.stdtr(dd, -np.abs(tt)), ok,
+                      parts["statistic"], dfs)
+    elif alternative == "greater":
+        raw = _masked(lambda tt, dd: special.stdtr(dd, -tt), ok, parts["statistic"], dfs)
+    else:
+        raw = _masked(lambda tt, dd: special.stdtr(dd, tt), ok, parts["statistic"], dfs)
+    p = np.where(ok, _pvalue_adjust(np.where(ok, np.clip(raw, 0.0, 1.0), 1.0), adjust), np.nan)
+    a_level = 1.0 - cl
     if adjust == "sidak":
-        alpha_each = -np.expm1(np.log1p(-alpha) / n_pairs)  # 1 - (1 - alpha)^(1/m)
+        alpha_each = -np.expm1(np.log1p(-a_level) / n_pairs)  # 1 - (1 - alpha)^(1/m)
         interval = "simultaneous intervals (Sidak), each at level (1 - alpha)^(1/m)"
     else:
-        alpha_each = alpha / n_pairs
+        alpha_each = a_level / n_pairs
         interval = (
             "simultaneous intervals (Bonferroni), each at level 1 - alpha/m"
             if adjust == "bonferroni"
             else "Bonferroni-level intervals, each at level 1 - alpha/m: Holm's step-down "
             "tests have no matching simultaneous interval"
         )
-    crit = special.stdtrit(df, 1.0 - alpha_each / 2.0)
+    if error_term == "per_pair":
+        interval += "; Welch's df, so the coverage is approximate"
+    sides = 2.0 if alternative == "two-sided" else 1.0
+    crit = _masked(lambda dd: special.stdtrit(dd, 1.0 - alpha_each / sides), ok, dfs)
     return _finish(
         method="pairwise_t",
-        pairs=pairs,
+        pairs=family,
         parts=parts,
         crit=crit,
         cl=cl,
         adjust=adjust,
-        alternative="two-sided",
+        alternative=alternative,
         interval=interval,
         p=p,
+        lower=alternative != "less",
+        upper=alternative != "greater",
+        rejected=None if level is None else ok & (np.nan_to_num(p, nan=1.0) <= level),
     )
 
 
@@ -540,14 +699,13 @@ def pairwise_t(
 # Dunnett
 # --------------------------------------------------------------------------------------------
 
-_ALTERNATIVES = ("two-sided", "less", "greater")
-
-
 def dunnett(
     *groups: np.ndarray,
     control: int = 0,
     alternative: Literal["two-sided", "less", "greater"] = "two-sided",
     confidence_level: float = 0.95,
+    alpha: float | None = None,
+    pvalues: bool = True,
 ) -> Comparisons:
     """Comparisons of every treatment group with one control group (Dunnett's many-to-one).
 
@@ -562,6 +720,14 @@ def dunnett(
         below it.
     confidence_level : float, optional
         Simultaneous coverage, default 0.95.
+    alpha : float, optional
+        When given, ``rejected`` holds which comparisons are significant at alpha
+        (``pvalue_adjusted <= alpha``).
+    pvalues : bool, optional
+        Default True. False (needs ``alpha``): decide ``rejected`` by comparing the statistic
+        with the critical value at alpha, which gives the same rejections, and compute
+        adjusted p-values only for statistics within a relative 1e-8 of that critical value
+        (NaN elsewhere). For simulations that count decisions.
 
     Returns
     -------
@@ -585,17 +751,11 @@ def dunnett(
        treatments with a control. JASA 50, 1096-1121.
     """
     cl = _validate_confidence(confidence_level)
-    if alternative not in _ALTERNATIVES:
-        raise InputError(
-            f"alternative {alternative!r} is not allowed; use one of {', '.join(_ALTERNATIVES)}"
-        )
+    _validate_alternative(alternative)
+    level = _validate_route(alpha, pvalues)
     m, df = _validate_pooled(groups, "Dunnett")
     k = len(groups)
-    if isinstance(control, bool) or not isinstance(control, (int, np.integer)):
-        raise InputError(f"control must be a group index (an integer); got {control!r}")
-    if not 0 <= int(control) < k:
-        raise InputError(f"control {control!r} is not a group index; use 0 to {k - 1}")
-    control = int(control)
+    control = _validate_control(control, k)
     pairs = tuple((i, control) for i in range(k) if i != control)
     parts = _pooled_pairs(m, df, pairs)
     ok = parts["computable"]
@@ -603,11 +763,22 @@ def dunnett(
     n_treat = tuple(int(m.n[i]) for i, _ in pairs)
     # Dunnett (1955), sec. 3: p_i = P(max_j |T_j| >= |t_i|) two-sided, P(max_j T_j >= t_i)
     # "greater", P(min_j T_j <= t_i) "less", under the global null.
-    p = _masked(
-        lambda tt: _dunnett_pvalues(tt, n_control, n_treat, df, alternative),
-        ok,
-        parts["statistic"],
-    )
+    rejected = None
+    if pvalues:
+        p = _masked(
+            lambda tt: _dunnett_pvalues(tt, n_control, n_treat, df, alternative),
+            ok,
+            parts["statistic"],
+        )
+        if level is not None:
+            rejected = ok & (np.nan_to_num(p, nan=1.0) <= level)
+    else:
+        t = parts["statistic"]
+        # the value referred to the distribution of max |T| (or max T): |t|, t or -t
+        x = np.abs(t) if alternative == "two-sided" else (t if alternative == "greater" else -t)
+        rejected, p = _decide(
+            x, _dunnett_critical(level, n_control, n_treat, df, alternative), ok, level,
+            lambda near: _dunnett_pvalues(t[near], n_control, n_treat, df, alternative))
     crit = _dunnett_critical(1.0 - cl, n_control, n_treat, df, alternative)
     kind = "two-sided" if alternative == "two-sided" else "one-sided"
     return _finish(
@@ -622,4 +793,5 @@ def dunnett(
         p=p,
         lower=alternative != "less",
         upper=alternative != "greater",
+        rejected=rejected,
     )

@@ -31,6 +31,14 @@ The inner range distribution of ``k`` standard normals (needed at many points) i
 per ``k`` as piecewise Chebyshev interpolants of ``log W_k(w)`` and ``log(1 - W_k(w))`` in
 ``log w``; each table node is itself an accurate composite Gauss-Legendre integral.
 
+Large batches (a few hundred values or more) take interpolated routes, each checked against
+the direct computation when its table is built and replaced by it wherever the check fails:
+the outer nodes for values that each have their own df (Games-Howell, Welch-type Dunnett) are
+interpolated in ``df**-0.5`` per rule class; studentized-range quantiles at many distinct df
+come from per-class interpolants of ``log q``; Dunnett's known-variance probability is
+tabulated once per allocation like the range distribution. Measured against the direct
+computation: about 1e-15 absolute and 1e-13 relative (tests require 1e-9 absolute).
+
 References
 ----------
 1. Hartley, H. O. (1942). The range in random samples. Biometrika 32, 334-348.
@@ -182,6 +190,104 @@ def _chi_scale_rule(df: float) -> tuple[np.ndarray, np.ndarray]:
     log_s.setflags(write=False)
     w.setflags(write=False)
     return log_s, w
+
+
+# Outer nodes for many distinct df at once. The inverse incomplete gamma function costs about a
+# microsecond per node, so with a separate df per value (Games-Howell, Welch-type statistics)
+# the node sets, not the integrals, would dominate. Within one rule class the nodes
+# log s_j(df) are analytic in r = df**-0.5 (the Cornish-Fisher expansion of chi2 quantiles is
+# a power series in df**-0.5), so each class is interpolated on Chebyshev points in r, and the
+# interpolant is used only if it reproduces the exact nodes at every check point (the N + 1
+# extrema between and beside the interpolation points) to _NODE_RTOL; otherwise, and outside
+# the tabulated df, the nodes are computed exactly. An error d in log s changes
+# P = int f(s) W(q s) ds by at most d * sup_x |x W'(x)|, well below 1e-12 here.
+_R_DEG = 24
+_NODE_RTOL = 1e-13
+_NODE_DF_MAX = 1e5            # beyond this the inverse incomplete gamma itself loses digits
+#: Below this many values (with distinct df) the exact per-value nodes are cheap enough.
+_MANY_VALUES = 256
+
+
+def _class_df_range(cls: int) -> tuple[float, float] | None:
+    """The df interval [lo, hi] whose nodes class ``cls`` tabulates (None: not tabulated)."""
+    lo = _OUTER_RULES[cls][0]
+    if lo <= 0.0:
+        return None
+    return lo, (_NODE_DF_MAX if cls == 0 else _OUTER_RULES[cls - 1][0])
+
+
+def _outer_classes(df: np.ndarray) -> np.ndarray:
+    """Vectorised :func:`_outer_class` (df > 0)."""
+    floors = np.array([r[0] for r in _OUTER_RULES[:-1]])
+    return np.sum(df[:, None] < floors[None, :], axis=1)
+
+
+def _cheb_basis(t: np.ndarray, n: int) -> np.ndarray:
+    """Chebyshev polynomials T_0..T_{n-1} at t, shape t.shape + (n,)."""
+    out = np.empty(t.shape + (n,))
+    out[..., 0] = 1.0
+    out[..., 1] = t
+    for j in range(2, n):
+        out[..., j] = 2.0 * t * out[..., j - 1] - out[..., j - 2]
+    return out
+
+
+def _fit_in_r(fun, df_lo: float, df_hi: float, rtol: float):
+    """Chebyshev interpolant in r = df**-0.5 on [df_lo, df_hi] of fun(df) -> (n, m), or None.
+
+    Returned as (a, b, coef) with coef shaped (degree, m), or None when the interpolant misses
+    fun by more than ``rtol * max(1, |fun|)`` at a check point.
+    """
+    a, b = df_hi ** -0.5, df_lo ** -0.5
+    r = 0.5 * (a + b) + 0.5 * (b - a) * _cheb_nodes(_R_DEG)
+    coef = np.ascontiguousarray(_cheb_coefficients(np.asarray(fun(r ** -2.0)).T).T)
+    t_chk = np.cos(np.pi * np.arange(_R_DEG + 1) / _R_DEG)
+    r_chk = np.clip(0.5 * (a + b) + 0.5 * (b - a) * t_chk, a, b)
+    exact = np.asarray(fun(r_chk ** -2.0))
+    approx = _cheb_basis(t_chk, _R_DEG) @ coef
+    if not np.all(np.isfinite(exact)):
+        return None
+    if np.max(np.abs(approx - exact) / np.maximum(1.0, np.abs(exact))) > rtol:
+        return None
+    coef.setflags(write=False)
+    return a, b, coef
+
+
+def _eval_in_r(table, df: np.ndarray) -> np.ndarray:
+    a, b, coef = table
+    t = np.clip((2.0 * df ** -0.5 - (a + b)) / (b - a), -1.0, 1.0)
+    return _cheb_basis(t, coef.shape[0]) @ coef
+
+
+def _exact_log_s(v: np.ndarray, df: np.ndarray) -> np.ndarray:
+    """log s_j for each df (rows) at normal scores v (columns): s = sqrt(chi2_df quantile / df)."""
+    d = df[:, None]
+    return 0.5 * (np.log(_chi2_quantile_from_score(v[None, :], d)) - np.log(d))
+
+
+@lru_cache(maxsize=None)
+def _log_s_table(cls: int):
+    """Interpolant of the outer nodes log s_j(df) of class ``cls`` in r, or None."""
+    span = _class_df_range(cls)
+    if span is None:
+        return None
+    v, _ = _outer_rule_by_class(cls)
+    return _fit_in_r(lambda d: _exact_log_s(v, d), span[0], span[1], _NODE_RTOL)
+
+
+def _log_s_rows(cls: int, df: np.ndarray, interpolate: bool) -> np.ndarray:
+    """Outer nodes log s_j for values with their own df, all of class ``cls``: (n, m)."""
+    v, _ = _outer_rule_by_class(cls)
+    table = _log_s_table(cls) if interpolate else None
+    if table is None:
+        return _exact_log_s(v, df)
+    inside = df <= _class_df_range(cls)[1]
+    if inside.all():
+        return _eval_in_r(table, df)
+    rows = np.empty((df.size, v.size))
+    rows[inside] = _eval_in_r(table, df[inside])
+    rows[~inside] = _exact_log_s(v, df[~inside])
+    return rows
 
 
 # --------------------------------------------------------------------------------------------
@@ -349,19 +455,32 @@ _SHARED_DF = 64
 
 
 def _srange_many_df(q: np.ndarray, k: int, df: np.ndarray, upper: bool) -> np.ndarray:
-    """Like :func:`_srange_one` with a separate finite df per value."""
+    """Like :func:`_srange_one` with a separate finite df per value.
+
+    With many values the outer nodes come from the interpolants of :func:`_log_s_table`
+    (exact nodes where a class is not tabulated or fails its check).
+    """
     out = np.empty(q.shape)
-    classes = np.array([_outer_class(d) for d in df])
+    classes = _outer_classes(df)
+    interpolate = q.size >= _MANY_VALUES
     for cls in np.unique(classes):
         sel = np.flatnonzero(classes == cls)
         v, weight = _outer_rule_by_class(int(cls))
-        log_s = np.empty((sel.size, v.size))
         step = max(1, _CHUNK // v.size)
         for i in range(0, sel.size, step):
-            d = df[sel[i:i + step], None]
-            log_s[i:i + step] = 0.5 * (np.log(_chi2_quantile_from_score(v[None, :], d)) - np.log(d))
-        out[sel] = _srange_integral(np.log(q[sel]), log_s, weight, k, upper)
+            part = sel[i:i + step]
+            log_s = _log_s_rows(int(cls), df[part], interpolate)
+            out[part] = _srange_integral(np.log(q[part]), log_s, weight, k, upper)
     return out
+
+
+def _group_by_pair(kf: np.ndarray, dff: np.ndarray):
+    """Distinct (k, df) pairs: (pairs, counts, members in pair order, start of each pair)."""
+    pairs, inverse, counts = np.unique(np.stack([kf, dff], axis=1), axis=0,
+                                       return_inverse=True, return_counts=True)
+    order = np.argsort(inverse.ravel(), kind="stable")
+    starts = np.concatenate([[0], np.cumsum(counts)])
+    return pairs, counts, order, starts
 
 
 def _srange(q: object, k: object, df: object, upper: bool) -> np.ndarray:
@@ -379,20 +498,19 @@ def _srange(q: object, k: object, df: object, upper: bool) -> np.ndarray:
     live = np.isfinite(qf) & (qf > 0)
     if np.any(live):
         idx_live = np.flatnonzero(live)
-        pairs, inverse, counts = np.unique(np.stack([kf[live], dff[live]], axis=1), axis=0,
-                                           return_inverse=True, return_counts=True)
-        inverse = inverse.ravel()
+        pairs, counts, order, starts = _group_by_pair(kf[live], dff[live])
         scattered = np.zeros(idx_live.shape, dtype=bool)
         for p, (kk, dd) in enumerate(pairs):
-            members = inverse == p
+            members = order[starts[p]:starts[p + 1]]
             if counts[p] < _SHARED_DF and math.isfinite(dd):
-                scattered |= members
+                scattered[members] = True
                 continue
             sel = idx_live[members]
             out[sel] = _srange_one(qf[sel], int(kk), float(dd), upper)
-        for kk in np.unique(kf[idx_live[scattered]]):
-            sel = idx_live[scattered & (kf[idx_live] == kk)]
-            out[sel] = _srange_many_df(qf[sel], int(kk), dff[sel], upper)
+        if scattered.any():
+            for kk in np.unique(kf[idx_live[scattered]]):
+                sel = idx_live[scattered & (kf[idx_live] == kk)]
+                out[sel] = _srange_many_df(qf[sel], int(kk), dff[sel], upper)
     return out.reshape(shape)[()]
 
 
@@ -419,6 +537,8 @@ def studentized_range_sf(q: object, k: object, df: object) -> np.ndarray:
     Computed as ``int f_s(s) [1 - W_k(q s)] ds`` (Tukey 1953; Harter 1960) with the range
     distribution ``W_k`` tabulated per ``k`` and the outer integral on a fixed normal-score rule
     per ``df``; inputs are grouped by distinct ``(k, df)`` pairs so the node sets are reused.
+    Many values with their own df (Games-Howell) use outer nodes interpolated in ``df**-0.5``
+    (checked to 1e-13 against the exact nodes; about 1e-15 in the probability).
     Absolute error is below 1e-10 over ``k <= 20``, ``df >= 1`` (tested against
     ``scipy.stats.studentized_range`` to 1e-9); the upper tail is integrated directly, not as
     ``1 - cdf``.
@@ -472,8 +592,19 @@ def studentized_range_ppf(p: object, k: object, df: object) -> np.ndarray:
     pf, kf, dff = p_b.ravel(), k_b.ravel(), df_b.ravel()
     out = np.where(pf == 0, 0.0, np.inf)
     inner = (pf > 0) & (pf < 1)
-    for kk, dd in {(float(a), float(b)) for a, b in zip(kf[inner], dff[inner])}:
-        sel = np.flatnonzero(inner & (kf == kk) & (dff == dd))
+    # Many distinct finite df for one (k, p), as with Games-Howell critical values: quantiles
+    # interpolated in df**-0.5 (or solved for all df at once); few: one solve per (k, df).
+    few = np.zeros(pf.shape, dtype=bool)
+    for kk, pp in {(float(a), float(b)) for a, b in zip(kf[inner], pf[inner])}:
+        sel = np.flatnonzero(inner & (kf == kk) & (pf == pp) & np.isfinite(dff))
+        distinct, where = np.unique(dff[sel], return_inverse=True)
+        if distinct.size >= _SHARED_DF:
+            out[sel] = _srange_ppf_many_df(pp, int(kk), distinct)[where.ravel()]
+        else:
+            few[sel] = True
+    few |= inner & ~np.isfinite(dff)
+    for kk, dd in {(float(a), float(b)) for a, b in zip(kf[few], dff[few])}:
+        sel = np.flatnonzero(few & (kf == kk) & (dff == dd))
         pp = pf[sel]
         low = pp <= 0.5
         res = np.empty(pp.shape)
@@ -492,6 +623,61 @@ def studentized_range_ppf(p: object, k: object, df: object) -> np.ndarray:
 def _log_or_neg_inf(p: np.ndarray) -> np.ndarray:
     with np.errstate(divide="ignore"):
         return np.log(p)
+
+
+def _srange_ppf_solve(p: float, k: int, df: np.ndarray) -> np.ndarray:
+    """Quantiles at probability p for many finite df at once (exact nodes, one bisection)."""
+    out = np.empty(df.shape)
+    classes = _outer_classes(df)
+    for cls in np.unique(classes):
+        sel = np.flatnonzero(classes == cls)
+        v, weight = _outer_rule_by_class(int(cls))
+        rows = _exact_log_s(v, df[sel])
+        if p <= 0.5:
+            res = _bisect_log(
+                lambda x: _log_or_neg_inf(_srange_integral(x, rows, weight, k, upper=False)),
+                np.full(sel.size, math.log(p)), -40.0, 60.0)
+        else:
+            res = _bisect_log(
+                lambda x: -_log_or_neg_inf(_srange_integral(x, rows, weight, k, upper=True)),
+                np.full(sel.size, -math.log1p(-p)), -40.0, 60.0)
+        out[sel] = np.exp(res)
+    return out
+
+
+#: Largest error of an interpolated log quantile at the check points.
+_PPF_LOG_TOL = 1e-13
+
+
+@lru_cache(maxsize=256)
+def _srange_ppf_table(p: float, k: int, cls: int):
+    """Interpolant in df**-0.5 of the quantile over the df of class ``cls``, or None."""
+    span = _class_df_range(cls)
+    if span is None:
+        return None
+    return _fit_in_r(lambda d: np.log(_srange_ppf_solve(p, k, d))[:, None], span[0], span[1],
+                     _PPF_LOG_TOL)
+
+
+def _srange_ppf_many_df(p: float, k: int, df: np.ndarray) -> np.ndarray:
+    """Quantiles at probability p for many distinct finite df.
+
+    Each df class has a cached Chebyshev interpolant of log q in r = df**-0.5 that was checked
+    against exact quantiles at N + 1 points (|d log q| <= 1e-13 there); df outside the
+    tabulated classes, or in a class whose check failed, are solved exactly.
+    """
+    out = np.empty(df.shape)
+    classes = _outer_classes(df)
+    for cls in np.unique(classes):
+        sel = np.flatnonzero(classes == cls)
+        table = _srange_ppf_table(float(p), int(k), int(cls))
+        span = _class_df_range(int(cls))
+        inside = np.zeros(sel.size, dtype=bool) if table is None else df[sel] <= span[1]
+        if inside.any():
+            out[sel[inside]] = np.exp(_eval_in_r(table, df[sel[inside]])[:, 0])
+        if not inside.all():
+            out[sel[~inside]] = _srange_ppf_solve(float(p), int(k), df[sel[~inside]])
+    return out
 
 
 # --------------------------------------------------------------------------------------------
@@ -565,18 +751,163 @@ def _dunnett_given_s(x: np.ndarray, lams: tuple[float, ...], two_sided: bool,
     return out
 
 
+# Known-variance tables for large batches. P(max |T_i| > x) given s (and its complement) is
+# tabulated once per allocation as piecewise Chebyshev interpolants of the log probability,
+# in y = log x (two-sided, x > 0) or in x (one-sided), from the quadrature of
+# :func:`_dunnett_given_s` at the nodes. A panel is used only if it reproduces that
+# quadrature at check points between the nodes to |d log P| <= _DT_LOG_TOL (relative 1e-11).
+# A panel that fails, or holds values below e**_DT_FLOOR, counts as zero when all its
+# probabilities are below e**_DT_NEGLECT (about 1e-26: the quadrature itself does not resolve
+# them, see the module notes) and is computed by the quadrature otherwise. Below the two-sided
+# table (x < 6e-6) P(max |T_i| <= x) is the normal density at 0 times the cube (2x)^m, to a
+# relative O(x^2).
+_DT_DEG = 17
+_DT_DOMAIN = {True: (-12.0, math.log(40.0), 0.25), False: (-40.0, 40.0, 0.5)}
+_DT_CHECKS = 6
+_DT_LOG_TOL = 1e-11
+_DT_FLOOR = -700.0
+_DT_NEGLECT = -60.0
+_VALID, _ZERO, _DIRECT = 0, 1, 2
+
+
+def _dunnett_log_given_s(u: np.ndarray, lams: tuple[float, ...], two_sided: bool,
+                         upper: bool) -> np.ndarray:
+    """log P(exceed | s = 1) (upper) or log P(inside | s = 1) at x = e^u (two-sided) or u.
+
+    Each is taken from whichever of the two probabilities is the smaller one (the other as
+    log(1 - p) of it), as for the range table.
+    """
+    x = np.exp(u) if two_sided else u
+    with np.errstate(divide="ignore"):
+        log_in = np.log(_dunnett_given_s(x, lams, two_sided, upper=False))
+        log_out = np.log(_dunnett_given_s(x, lams, two_sided, upper=True))
+    half = -math.log(2.0)
+    if upper:
+        return np.where(log_out < half, log_out, _log1mexp(log_in))
+    return np.where(log_in < half, log_in, _log1mexp(log_out))
+
+
+@lru_cache(maxsize=32)
+def _dunnett_table(lams: tuple[float, ...], two_sided: bool, upper: bool):
+    """(coefficients (degree, panels), panel status) of the known-variance table."""
+    lo, hi, h = _DT_DOMAIN[two_sided]
+    npanel = int(round((hi - lo) / h))
+    t = _cheb_nodes(_DT_DEG)
+    tc = -1.0 + (2.0 * np.arange(_DT_CHECKS) + 1.0) / _DT_CHECKS
+    base = lo + h * np.arange(npanel)[:, None]
+    u = base + 0.5 * h * (t[None, :] + 1.0)
+    uc = base + 0.5 * h * (tc[None, :] + 1.0)
+    vals = _dunnett_log_given_s(u.ravel(), lams, two_sided, upper).reshape(u.shape)
+    chk = _dunnett_log_given_s(uc.ravel(), lams, two_sided, upper).reshape(uc.shape)
+    both = np.concatenate([vals, chk], axis=1)
+    status = np.full(npanel, _VALID, dtype=np.int8)
+    status[~np.all(np.isfinite(both) & (both >= _DT_FLOOR), axis=1)] = _DIRECT
+    safe = np.where(status[:, None] == _VALID, vals, 0.0)
+    coef = np.ascontiguousarray(_cheb_coefficients(safe).T)     # (degree, panels)
+    approx = _cheb_eval_panels(coef, uc.ravel(), lo, h).reshape(uc.shape)
+    bad = np.max(np.abs(np.where(status[:, None] == _VALID, approx - chk, 0.0)), axis=1)
+    status[(status == _VALID) & (bad > _DT_LOG_TOL)] = _DIRECT
+    status[(status == _DIRECT) & np.all(both < _DT_NEGLECT, axis=1)] = _ZERO   # -inf included
+    coef.setflags(write=False)
+    status.setflags(write=False)
+    return coef, status
+
+
+def _cheb_eval_panels(coef: np.ndarray, u: np.ndarray, lo: float, h: float) -> np.ndarray:
+    """Evaluate piecewise Chebyshev panels of width h from lo (degree axis first) at u."""
+    npanel = coef.shape[1]
+    pos = np.clip((u - lo) / h, 0.0, float(npanel))
+    idx = np.minimum(pos.astype(np.intp), npanel - 1)
+    t2 = 2.0 * (2.0 * (pos - idx) - 1.0)
+    b1 = np.zeros_like(u)
+    b2 = np.zeros_like(u)
+    for j in range(coef.shape[0] - 1, 0, -1):
+        b1, b2 = t2 * b1 - b2 + coef[j].take(idx), b1
+    return 0.5 * t2 * b1 - b2 + coef[0].take(idx)
+
+
+def _dunnett_log_table(u: np.ndarray, lams: tuple[float, ...], two_sided: bool,
+                       upper: bool) -> np.ndarray:
+    """log P given s at u (see :func:`_dunnett_log_given_s`) from the table, any shape."""
+    coef, status = _dunnett_table(lams, two_sided, upper)
+    lo, hi, h = _DT_DOMAIN[two_sided]
+    flat = u.ravel()
+    out = _cheb_eval_panels(coef, flat, lo, h)
+    idx = np.minimum(np.clip((flat - lo) / h, 0.0, None).astype(np.intp), status.size - 1)
+    st = status.take(idx)
+    out[st == _ZERO] = -np.inf
+    # Beyond the far end both probabilities are below 1e-300: the exceedance is 0, its
+    # complement 1; one-sided far below, the other way round.
+    above = flat >= hi
+    out[above] = -np.inf if upper else 0.0
+    below = flat < lo
+    if two_sided:
+        # Genz & Bretz (2009), sec. 2.1 limit: P(max |T_i| <= x) ~ (2x)^m phi_R(0) as x -> 0,
+        # phi_R(0) = (2 pi)^(-m/2) det(R)^(-1/2), det R = prod(1 - lam) (1 + sum lam/(1 - lam))
+        # for the one-factor correlations of Dunnett (1955).
+        lam = np.asarray(lams)
+        m = lam.size
+        log_det = float(np.sum(np.log1p(-lam)) + math.log1p(float(np.sum(lam / (1.0 - lam)))))
+        log_in = m * (math.log(2.0) + flat[below]) - m * _LOG_SQRT_2PI - 0.5 * log_det
+        out[below] = _log1mexp(log_in) if upper else log_in
+    else:
+        out[below] = 0.0 if upper else -np.inf
+    direct = (st == _DIRECT) & ~above & ~below
+    if direct.any():
+        out[direct] = _dunnett_log_given_s(flat[direct], lams, two_sided, upper)
+    return out.reshape(u.shape)
+
+
+def _dunnett_batch(cl: np.ndarray, dfl: np.ndarray, lams: tuple[float, ...], two_sided: bool,
+                   upper: bool) -> np.ndarray:
+    """Dunnett probabilities for many values through the known-variance table.
+
+    Dunnett (1955), eq. (2.4): p(c) = int f(s) P(c s | s = 1) ds on the normal-score rule of
+    the studentized range, with the df of each value (shared or per value).
+    """
+    out = np.empty(cl.shape)
+    known = np.isinf(dfl)
+    if known.any():
+        u = np.log(cl[known]) if two_sided else cl[known]
+        out[known] = np.exp(_dunnett_log_table(u, lams, two_sided, upper))
+    fin = np.flatnonzero(~known)
+    if fin.size == 0:
+        return out
+    shared = np.unique(dfl[fin])
+    for cls in (np.unique(_outer_classes(dfl[fin])) if shared.size > 1 else [None]):
+        if cls is None:
+            sel = fin
+            log_s, weight = _chi_scale_rule(float(shared[0]))
+        else:
+            sel = fin[_outer_classes(dfl[fin]) == cls]
+            _, weight = _outer_rule_by_class(int(cls))
+            log_s = None
+        step = max(1, _CHUNK // weight.size)
+        for i in range(0, sel.size, step):
+            part = sel[i:i + step]
+            rows = log_s if log_s is not None else _log_s_rows(int(cls), dfl[part], True)
+            if two_sided:
+                u = np.log(cl[part])[:, None] + rows
+            else:
+                u = cl[part][:, None] * np.exp(rows)
+            out[part] = np.exp(_dunnett_log_table(u, lams, two_sided, upper)) @ weight
+    return out
+
+
 def _dunnett(c: object, n_control: object, n_treatments: object, df: object, alternative: str,
              upper: bool) -> np.ndarray:
     _check_alternative(alternative)
     lams = _dunnett_lambdas(n_control, n_treatments)
     dfa = _as_float_array(df, "df")
-    if dfa.ndim != 0:
-        raise InputError("df must be a single number for the Dunnett distribution")
     _check_df(dfa)
-    dfv = float(dfa)
     c_a = _as_float_array(c, "c")
-    shape = c_a.shape
-    cf = c_a.ravel()
+    try:
+        c_b, df_b = np.broadcast_arrays(c_a, dfa)
+    except ValueError:
+        raise InputError(f"df must be one number or broadcast against c; got shapes "
+                         f"{dfa.shape} and {c_a.shape}") from None
+    shape = c_b.shape
+    cf, dff = c_b.ravel(), df_b.ravel()
     two_sided = alternative == "two-sided"
     out = np.full(cf.shape, np.nan)
     if two_sided:
@@ -584,17 +915,22 @@ def _dunnett(c: object, n_control: object, n_treatments: object, df: object, alt
     out[np.isposinf(cf)] = 0.0 if upper else 1.0
     out[np.isneginf(cf)] = 1.0 if upper else 0.0
     live = np.isfinite(cf) & ((cf > 0) | (not two_sided))
-    cl = cf[live]
-    if cl.size:
-        if math.isinf(dfv):
-            out[live] = _dunnett_given_s(cl, lams, two_sided, upper)
-        else:
+    cl, dfl = cf[live], dff[live]
+    if cl.size >= _MANY_VALUES:
+        out[live] = _dunnett_batch(cl, dfl, lams, two_sided, upper)
+    elif cl.size:
+        vals = np.empty(cl.shape)
+        for dfv in np.unique(dfl):
+            sel = dfl == dfv
+            if math.isinf(dfv):
+                vals[sel] = _dunnett_given_s(cl[sel], lams, two_sided, upper)
+                continue
             # Dunnett (1955), eq. (2.4): average the known-variance probability at x = c s over
             # s ~ sqrt(chi2_df / df), on the normal-score rule of the studentized range.
-            log_s, weight = _chi_scale_rule(dfv)
-            x = cl[:, None] * np.exp(log_s)[None, :]
-            vals = _dunnett_given_s(x.ravel(), lams, two_sided, upper).reshape(x.shape)
-            out[live] = vals @ weight
+            log_s, weight = _chi_scale_rule(float(dfv))
+            x = cl[sel][:, None] * np.exp(log_s)[None, :]
+            vals[sel] = _dunnett_given_s(x.ravel(), lams, two_sided, upper).reshape(x.shape) @ weight
+        out[live] = vals
     return np.clip(out, 0.0, 1.0).reshape(shape)[()]
 
 
@@ -615,8 +951,9 @@ def dunnett_sf(c: object, n_control: object, n_treatments: object, df: object,
         Size of the control group.
     n_treatments : sequence of int
         Sizes of the treatment groups (any allocation).
-    df : float
-        Degrees of freedom of ``s**2`` (``np.inf`` for known variance).
+    df : float or array_like
+        Degrees of freedom of ``s**2`` (``np.inf`` for known variance); one number, or one per
+        value of ``c``.
     alternative : {"two-sided", "greater", "less"}
 
     Notes
@@ -626,6 +963,10 @@ def dunnett_sf(c: object, n_control: object, n_treatments: object, df: object,
     is a single integral over the control mean inside an integral over ``s`` (Dunnett 1955,
     section 2). Both are fixed Gauss-Legendre rules: the result is deterministic and accurate to
     about 1e-10 absolute, and the upper tail is integrated as a complement of its own.
+    ``df`` may also be an array broadcasting against ``c`` (a df per statistic, Welch type).
+    For a few hundred values or more, the known-variance probability comes from a table built
+    once per allocation and checked against the quadrature (agreement about 1e-15 absolute,
+    1e-13 relative; probabilities below about 1e-26 are not resolved).
 
     References
     ----------

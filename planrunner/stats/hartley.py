@@ -8,6 +8,7 @@ group sizes.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Literal
 
 import numpy as np
 
@@ -29,13 +30,20 @@ class FmaxResult:
     statistic : batch-shaped array
         ``max_i s_i**2 / min_i s_i**2`` (NaN where not computable).
     pvalue : batch-shaped array
-        ``P(Fmax > statistic)`` under equal variances (NaN where not computable).
+        ``P(Fmax > statistic)`` under equal variances (NaN where not computable, and
+        everywhere when the p-value was not asked for).
     critical_value : float
         Upper ``alpha`` point of Fmax for these degrees of freedom.
     alpha : float
         Level used for ``critical_value``.
     df : tuple of int
         Degrees of freedom ``n_i - 1`` of each group's variance, in group order.
+    reference_df : tuple of int
+        Degrees of freedom of the Fmax distribution used for ``pvalue`` and
+        ``critical_value``: ``df`` itself (``unequal_n="exact"``) or the smallest of them for
+        every group (``"smallest_group"``).
+    unequal_n : str
+        ``"exact"`` or ``"smallest_group"``.
     k : int
         Number of groups.
     computable : batch-shaped bool array
@@ -49,6 +57,8 @@ class FmaxResult:
     critical_value: float
     alpha: float
     df: tuple[int, ...]
+    reference_df: tuple[int, ...]
+    unequal_n: str
     k: int
     computable: np.ndarray
     reason: np.ndarray
@@ -81,7 +91,9 @@ def _pvalue_hartley(statistic: np.ndarray, computable: np.ndarray, k: int,
     return pvalue
 
 
-def hartley_fmax(*groups: object, alpha: float = 0.05) -> FmaxResult:
+def hartley_fmax(*groups: object, alpha: float = 0.05,
+                 unequal_n: Literal["exact", "smallest_group"] = "exact",
+                 pvalues: bool = True) -> FmaxResult:
     """Hartley's Fmax test that k normal populations have equal variances.
 
     Parameters
@@ -90,6 +102,14 @@ def hartley_fmax(*groups: object, alpha: float = 0.05) -> FmaxResult:
         k >= 2 arrays shaped ``(..., n_i)`` with ``n_i >= 2``; leading axes are a batch.
     alpha : float
         Level for the critical value.
+    unequal_n : {"exact", "smallest_group"}
+        With unequal group sizes: ``"exact"`` refers Fmax to its exact distribution for the
+        groups' own degrees of freedom; ``"smallest_group"`` to the equal-df distribution
+        with the smallest group's df (the conservative use of Hartley's table, common
+        practice). Equal sizes give the same result either way.
+    pvalues : bool
+        Default True; False leaves ``pvalue`` NaN (the decision ``statistic > critical_value``
+        needs only the cached critical value).
 
     Returns
     -------
@@ -110,17 +130,26 @@ def hartley_fmax(*groups: object, alpha: float = 0.05) -> FmaxResult:
     2. Pearson, E. S. and Hartley, H. O. (1954). Biometrika Tables for Statisticians, Table 31.
     """
     arrays, batch = _validate_hartley(groups, alpha)
+    if unequal_n not in ("exact", "smallest_group"):
+        raise InputError(
+            f"unequal_n {unequal_n!r} is not allowed; use one of exact, smallest_group")
     statistic, computable, n = _statistic_hartley(arrays)
     df = tuple(int(x) - 1 for x in n)
     k = len(df)
-    pvalue = _pvalue_hartley(statistic, computable, k, df)
+    reference = df if unequal_n == "exact" else (min(df),) * k
+    if pvalues:
+        pvalue = _pvalue_hartley(statistic, computable, k, reference)
+    else:
+        pvalue = np.full(statistic.shape, np.nan)
     _, reason = flag_cases(batch, (~computable, _ZERO_VARIANCE))
     return FmaxResult(
         statistic=scalarize(statistic),
         pvalue=scalarize(pvalue),
-        critical_value=fmax_critical(k, df, alpha),
+        critical_value=fmax_critical(k, reference, alpha),
         alpha=float(alpha),
         df=df,
+        reference_df=reference,
+        unequal_n=unequal_n,
         k=k,
         computable=scalarize(computable),
         reason=scalarize(reason),

@@ -9,7 +9,13 @@ from scipy import special
 
 from ._core import InputError, Interval, as_groups, concat_groups, flag_cases, group_moments, scalarize
 
-__all__ = ["GroupSummary", "describe_groups", "residuals"]
+__all__ = [
+    "GroupSummary",
+    "StudentizedResiduals",
+    "describe_groups",
+    "residuals",
+    "studentized_residuals",
+]
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -114,3 +120,85 @@ def residuals(*groups) -> np.ndarray:
         parts.append(d - mean_d)
     values, _ = concat_groups(parts)
     return values
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class StudentizedResiduals:
+    """Externally studentized residuals of the one-way model, one array per group.
+
+    Attributes
+    ----------
+    residuals : tuple of ndarray, each shaped ``(..., n_i)``
+        ``t_ij``; NaN exactly where ``computable`` is False, and +/-inf where a single value
+        carries all of the within-group variation (the deleted variance is zero).
+    df : float
+        Degrees of freedom of the deleted variance estimate, ``N - k - 1``.
+    computable : tuple of bool ndarray, each shaped ``(..., n_i)``
+    reason : tuple of str ndarray, each shaped ``(..., n_i)``
+        Why a residual is not computable, in one sentence; ``""`` where it is.
+    """
+
+    residuals: tuple[np.ndarray, ...]
+    df: float
+    computable: tuple[np.ndarray, ...]
+    reason: tuple[np.ndarray, ...]
+
+
+def studentized_residuals(*groups) -> StudentizedResiduals:
+    """Externally studentized residuals of the one-way model (group means), per value.
+
+    Parameters
+    ----------
+    *groups : array_like, each shaped ``(..., n_i)``
+        One or more groups; leading axes are a batch.
+
+    Returns
+    -------
+    StudentizedResiduals
+
+    Notes
+    -----
+    The one-way model fits each group's mean, so a value's leverage is ``h = 1 / n_i``. With
+    ``e`` its residual and ``s**2 = SS_within / (N - k)``, the internally studentized
+    residual is ``r = e / (s sqrt(1 - h))`` and the externally studentized one (``s``
+    replaced by the estimate without the value) ``t = r sqrt((N - k - 1) / (N - k - r**2))``
+    [1]_; under normal errors ``t`` follows Student's t on ``N - k - 1`` df. Not computable:
+    every value when ``N - k - 1 < 1`` or every group is constant; a group of one value
+    (leverage 1).
+
+    References
+    ----------
+    .. [1] Cook, R. D. and Weisberg, S. (1982). Residuals and Influence in Regression.
+       Chapman and Hall, section 2.2.2.
+    """
+    arrays, batch = as_groups(groups, min_groups=1, min_n=1, name="studentized_residuals")
+    n = np.array([g.shape[-1] for g in arrays], dtype=float)
+    res = residuals(*arrays)                                       # (..., N), centred per group
+    dfw = float(n.sum() - n.size)
+    ss = (res * res).sum(axis=-1)
+    h = np.concatenate([np.full(int(ni), 1.0 / ni) for ni in n])
+    too_few = bool(dfw - 1.0 < 1.0)
+    ok = (not too_few) & (ss > 0)
+    s2 = np.where(ok, ss / max(dfw, 1.0), 1.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r = res / np.sqrt(s2[..., None] * np.where(h < 1, 1.0 - h, np.nan))
+        den = dfw - r * r
+        # Cook & Weisberg (1982), eq. (2.2.9): t = r sqrt((N - k - 1) / (N - k - r^2)).
+        t = np.where(den > 0, r * np.sqrt((dfw - 1.0) / np.where(den > 0, den, 1.0)),
+                     np.sign(r) * np.inf)
+    shape = batch + (h.size,)
+    computable, reason = flag_cases(
+        shape,
+        (too_few, "fewer than two residual degrees of freedom (N - k - 1 < 1)"),
+        (~ok[..., None], "every group is constant, so the residual variance is zero"),
+        (h >= 1, "a group of one value has leverage 1, so its residual is undefined"),
+    )
+    t = np.where(computable, t, np.nan)
+    bounds = np.concatenate([[0], np.cumsum(n)]).astype(int)
+    cut = [slice(bounds[i], bounds[i + 1]) for i in range(len(arrays))]
+    return StudentizedResiduals(
+        residuals=tuple(t[..., c] for c in cut),
+        df=dfw - 1.0,
+        computable=tuple(computable[..., c] for c in cut),
+        reason=tuple(reason[..., c] for c in cut),
+    )

@@ -49,16 +49,25 @@ def simulate(b: int, seed: int = 7) -> list[np.ndarray]:
     return [np.exp(rng.normal(m, s, size=(b, 8))) for m, s in zip(centre, sigma)]
 
 
+class _Detailed(CountingRecorder):
+    """Counts like a rehearsal but asks for the numbers a run records (p-values)."""
+
+    detailed = True
+
+
 def test_batched_decide_equals_one_at_a_time(tmp_path):
     plan = load(tmp_path).model
     groups = simulate(60)
-    whole = decide_batch(plan, groups, CountingRecorder())
+    whole = decide_batch(plan, groups, _Detailed())
+    counted = decide_batch(plan, groups, CountingRecorder())
+    # the rehearsal route (critical values) rejects exactly where p <= alpha
+    np.testing.assert_array_equal(counted.comparison_rejected, whole.comparison_rejected)
     labels = set(whole.path_labels)
     # the batch really mixes branches (see the module docstring)
     assert {"identity / classic", "identity / welch"} <= labels
     assert len(labels) >= 3
     for j in range(60):
-        one = decide_batch(plan, [g[j:j + 1] for g in groups], CountingRecorder())
+        one = decide_batch(plan, [g[j:j + 1] for g in groups], _Detailed())
         assert one.path_labels[one.path[0]] == whole.path_labels[whole.path[j]]
         assert one.omnibus[0] == whole.omnibus[j]
         assert one.omnibus_pvalue[0] == pytest.approx(whole.omnibus_pvalue[j], rel=1e-12)
@@ -66,6 +75,8 @@ def test_batched_decide_equals_one_at_a_time(tmp_path):
         assert one.comparisons_performed[0] == whole.comparisons_performed[j]
         np.testing.assert_allclose(one.comparison_pvalues[0], whole.comparison_pvalues[j],
                                    rtol=1e-10, equal_nan=True)
+        np.testing.assert_array_equal(one.comparison_rejected[0], whole.comparison_rejected[j])
+    assert whole.comparisons_performed.any() and whole.comparison_rejected.any()
 
 
 def test_counting_and_logging_recorders_see_the_same_decisions(tmp_path):

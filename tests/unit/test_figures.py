@@ -1,12 +1,12 @@
 """The report's matplotlib figures: valid, deterministic SVG with a text alternative.
 
-Endpoint dicts follow the engine's per-endpoint shape; fields results.json does not carry
-today (values, residuals, the Box-Cox profile) are added where a test needs them. The data
-are invented.
+Endpoint dicts follow the per-endpoint shape of results.json; the optional parts (values,
+residuals, the Box-Cox profile) are added where a test needs them. The data are invented.
 """
 
 from __future__ import annotations
 
+import math
 import re
 import xml.etree.ElementTree as ET
 from typing import Any
@@ -14,12 +14,16 @@ from typing import Any
 import pytest
 
 from planrunner.report.figures import (
+    MAX_POINTS,
+    _jitter,
     _normal_quantiles,
+    _thin,
     boxcox_profile_figure,
     comparisons_figure,
     endpoint_figures,
     group_estimates_figure,
     residual_quantile_figure,
+    residuals_of,
     spread_figure,
 )
 
@@ -76,6 +80,13 @@ def _check_svg(svg: str) -> ET.Element:
     return root
 
 
+def _points(svg: str) -> int:
+    """Scatter markers in a matplotlib SVG: <use> elements inside PathCollection groups."""
+    root = ET.fromstring(svg)
+    return sum(len(g.findall(f".//{NS}use")) for g in root.iter(f"{NS}g")
+               if "PathCollection" in (g.get("id") or ""))
+
+
 def test_group_estimates_two_scales() -> None:
     fig = group_estimates_figure(_endpoint(), salt="t-est")
     assert fig is not None
@@ -83,17 +94,40 @@ def test_group_estimates_two_scales() -> None:
     texts = {"".join(t.itertext()) for t in root.iter(f"{NS}text")}
     assert {"tap", "chlorine", "ozone", "Original scale"} <= texts
     assert any(t.startswith("Analysis scale") for t in texts)
-    assert "tap: mean 900" in fig.desc
-    assert "grey dots" not in fig.caption  # no values in the endpoint
+    assert "tap: n 4, mean 900" in fig.desc
+    assert "individual values" not in fig.caption  # no values in the endpoint
 
 
 def test_group_estimates_with_values_draws_points() -> None:
     e = _endpoint()
     for g in e["groups"]:
         g["values"] = [g["original"]["mean"] * f for f in (0.6, 1.0, 1.4, 1.0)]
+        g["ci_level"] = 0.9
+        g["analysis_values"] = [math.log10(v) for v in g["values"]]
     fig = group_estimates_figure(e, salt="t-val")
-    assert fig is not None and "grey dots" in fig.caption
+    assert fig is not None and "open grey circles" in fig.caption
+    assert "90% confidence intervals" in fig.caption
     _check_svg(fig.svg)
+    assert _points(fig.svg) == 2 * 12  # 12 values on each of the two panels
+
+
+def test_jitter_is_deterministic_and_bounded() -> None:
+    a, b = _jitter(50, 0.22), _jitter(50, 0.22)
+    assert a == b and all(-0.11 <= x < 0.11 for x in a)
+    assert len(set(round(x, 9) for x in a)) == 50  # no two points share an offset
+
+
+def test_large_groups_are_drawn_as_quantiles() -> None:
+    values = [float(i % 97) for i in range(5000)]
+    pts, thinned = _thin(values, MAX_POINTS)
+    assert thinned and len(pts) == MAX_POINTS
+    assert pts[0] == min(values) and pts[-1] == max(values) and pts == sorted(pts)
+    assert _thin([3.0, 1.0], MAX_POINTS) == ([3.0, 1.0], False)
+    e = _endpoint()
+    e["groups"][0]["values"] = values
+    fig = group_estimates_figure(e, salt="t-big")
+    assert fig is not None and f"{MAX_POINTS} evenly spaced quantiles" in fig.caption
+    assert _points(fig.svg) == MAX_POINTS  # only this group carries values here
 
 
 def test_spread_figure_reports_sd_ratio() -> None:
@@ -130,27 +164,71 @@ def test_comparisons_not_made_gives_no_figure() -> None:
 
 def test_residual_and_boxcox_figures_need_their_fields() -> None:
     e = _endpoint()
-    assert residual_quantile_figure(e, salt="x") is None
+    assert residual_quantile_figure(e, salt="x") is None  # no values in the endpoint
     assert boxcox_profile_figure(e, salt="x") is None
-    e["residuals"] = [-0.31, -0.12, -0.05, 0.0, 0.02, 0.08, 0.15, 0.23]
+    values = [[1.2, 1.5, 1.9, 2.4], [0.9, 1.1, 1.6, 1.8], [2.2, 2.3, 2.9, 3.6]]
+    for g, v in zip(e["groups"], values):
+        g["values"] = [10 ** x for x in v]
+        g["analysis_values"] = v
+    res, scale = residuals_of(e)
+    assert scale == "log10"
+    expected = [x - sum(v) / len(v) for v in values for x in v]
+    assert max(abs(a - b) for a, b in zip(res, expected)) < 1e-15 and len(res) == 12
     fig = residual_quantile_figure(e, salt="t-res")
-    assert fig is not None and fig.desc.startswith("8 residuals")
+    assert fig is not None and fig.desc.startswith("12 residuals on the log10 scale")
     _check_svg(fig.svg)
-    e["transform"] = {"name": "boxcox", "shift": 0.0, "lambda": 0.0, "lambda_ci": [-0.4, 0.5],
+    assert _points(fig.svg) == 12
+    e["transform"] = {"name": "boxcox", "shift": 0.0, "lambda": 0.0, "lambda_estimate": 0.08,
+                      "lambda_ci": [-0.4, 0.5],
                       "profile": {"lambda": [-1.0, -0.5, 0.0, 0.5, 1.0],
-                                  "loglik": [-30.0, -26.0, -25.0, -26.5, -31.0]}}
+                                  "loglik": [-30.0, -26.0, -25.0, -26.5, -31.0],
+                                  "loglik_max": -24.9, "cutoff": -26.82,
+                                  "confidence_level": 0.95}}
     box = boxcox_profile_figure(e, salt="t-box")
-    assert box is not None and "from -0.4 to 0.5" in box.desc
-    _check_svg(box.svg)
+    assert box is not None and "95% interval runs from -0.4 to 0.5" in box.desc
+    assert "estimate 0.08" in box.desc and "cut-off -26.82" in box.desc
+    assert "lambda used is 0" in box.desc
+    root = _check_svg(box.svg)
+    texts = {"".join(t.itertext()) for t in root.iter(f"{NS}text")}
+    assert {"estimate 0.08", "used 0", "95% cut-off"} <= texts
+
+
+def test_many_residuals_are_thinned() -> None:
+    e = _endpoint()
+    e["analysis_scale"] = "original"
+    n = 10 * MAX_POINTS + 500
+    for k, g in enumerate(e["groups"]):
+        g["values"] = [((i * 37) % 101 - 50) / 7 + k for i in range(n // 3 + (k == 0) * (n % 3))]
+    fig = residual_quantile_figure(e, salt="t-many")
+    assert fig is not None and fig.desc.startswith(f"{n} residuals on the original scale")
+    assert _points(fig.svg) == 10 * MAX_POINTS
+
+
+def test_residuals_of_a_rank_test_or_a_halt() -> None:
+    e = _endpoint()
+    for g in e["groups"]:
+        g["values"] = [1.0, 2.0, 4.0]
+    e["analysis_scale"] = "ranks"
+    e["transform"]["name"] = "identity"
+    res, scale = residuals_of(e)
+    assert scale == "original" and len(res) == 9 and abs(sum(res)) < 1e-12
+    e["transform"]["name"] = "log10"  # ranks of transformed values: not in results.json
+    assert residuals_of(e) == ([], None)
+    e["analysis_scale"], e["status"] = "original", "halted"
+    assert residuals_of(e) == ([], None)
 
 
 def test_endpoint_figures_notes_and_unique_ids() -> None:
     e = _endpoint()
-    e["transform"] = {"name": "boxcox", "shift": 0.0, "lambda": 0.5, "why": "", "tried": []}
+    e["transform"] = {"name": "boxcox", "shift": 0.0, "lambda": 0.5, "why": "", "tried": [],
+                      "lambda_estimate": None, "lambda_ci": None, "profile": None}
     figures, notes = endpoint_figures(e, index=1)
     assert [f.key for f in figures] == ["estimates", "spread", "comparisons"]
-    assert any("residuals" in n for n in notes)
-    assert any("profile log-likelihood" in n for n in notes)
+    assert notes == ["No normal quantile plot of residuals: fewer than three residuals.",
+                     "No Box-Cox profile: the lambda was not estimated for this endpoint."]
+    e["status"] = "halted"
+    assert endpoint_figures(e, index=1)[1][0].startswith(
+        "No normal quantile plot of residuals: the plan halted")
     again, _ = endpoint_figures(e, index=2)
     ids = [i for f in figures + again for i in re.findall(r'\bid="([^"]+)"', f.svg)]
     assert len(ids) == len(set(ids))

@@ -8,12 +8,14 @@ invented.
 
 from __future__ import annotations
 
+import math
 import re
 import xml.etree.ElementTree as ET
 from pathlib import Path
 from typing import Any
 
 import pytest
+from markupsafe import escape
 
 from planrunner.audit.log import DecisionLog, sha256_hex
 from planrunner.errors import PlanError
@@ -34,6 +36,16 @@ from planrunner.report.results import CAUTIONS, RESULTS_FORMAT, results_bytes
 PLANS = Path(__file__).resolve().parents[2] / "plans"
 HEX = "ab" * 32
 LEVELS = ["control", "low", "high"]
+#: results.plan.settings as planrunner.report.results.plan_settings writes them
+SETTINGS: dict[str, Any] = {
+    "alpha": 0.05, "compare": "means", "omnibus": "classic", "when_variances_differ": "welch",
+    "degenerate_groups": "halt", "outliers": {"rule": "none", "action": "flag"},
+    "variance_check": {"method": "levene_median", "alpha": 0.05, "role": "gate"},
+    "normality_check": {"method": "none"},
+    "transform": {"policy": "ladder", "ladder": ["identity", "log10", "reciprocal"],
+                  "shift": "auto"},
+    "comparisons": {"method": "tukey_kramer", "only_after_significant_omnibus": True},
+}
 
 
 # --------------------------------------------------------------------------------------------
@@ -42,13 +54,16 @@ LEVELS = ["control", "low", "high"]
 
 def _group(level: str, k: int, log: bool) -> dict[str, Any]:
     mean = 10.0 + 5.0 * k
+    values = [mean + (1.0 + k) * f for f in (-1.3, -0.6, -0.1, 0.2, 0.5, 1.3)]
     out: dict[str, Any] = {
-        "level": level, "n": 6, "n_missing": k % 2, "n_non_detects": 0,
+        "level": level, "n": 6, "n_missing": k % 2, "n_non_detects": 0, "ci_level": 0.95,
+        "values": values, "analysis_values": None,
         "original": {"mean": mean, "sd": 1.0 + k, "se": (1.0 + k) / 6 ** 0.5,
                      "ci": [mean - 2.0, mean + 2.0]},
         "analysis": None, "back_transformed": None,
     }
     if log:
+        out["analysis_values"] = [math.log10(v) for v in values]
         out["analysis"] = {"mean": 1.0 + 0.1 * k, "sd": 0.05, "se": 0.02,
                            "ci": [0.95 + 0.1 * k, 1.05 + 0.1 * k]}
         out["back_transformed"] = {"estimate": 10 ** (1.0 + 0.1 * k),
@@ -68,7 +83,8 @@ def make_endpoint(name: str, levels: list[str] = LEVELS, *, log: bool = True,
             "analysis_scale": "original", "groups": [_group(lv, k, False)
                                                      for k, lv in enumerate(levels)],
             "transform": {"name": "identity", "shift": 0.0, "lambda": None, "why": "",
-                          "tried": []},
+                          "tried": [], "lambda_estimate": None, "lambda_ci": None,
+                          "profile": None},
             "checks": [], "omnibus": None, "effect_sizes": [], "comparisons": None,
             "outliers": [], "sensitivity": [],
             "conclusion": {"text": "The plan halted for this endpoint.", "scale": None,
@@ -103,7 +119,8 @@ def make_endpoint(name: str, levels: list[str] = LEVELS, *, log: bool = True,
         "transform": {"name": "log10" if log else "identity", "shift": 0.0, "lambda": None,
                       "why": "rung 2 of the ladder (log10): the first on which the gates passed"
                       if log else "the plan analyses the data as measured",
-                      "tried": ["identity", "log10"] if log else []},
+                      "tried": ["identity", "log10"] if log else [],
+                      "lambda_estimate": None, "lambda_ci": None, "profile": None},
         "checks": [
             {"when": "before_transform", "method": "levene_median", "role": "gate",
              "statistic": 4.2, "critical_value": None, "pvalue": 0.035, "alpha": 0.05,
@@ -168,7 +185,7 @@ def write_run(folder: Path, endpoints: list[dict[str, Any]], *, question: str = 
     results = {
         "format": RESULTS_FORMAT,
         "plan": {"id": "demo-report", "revision": 3, "title": "Demo trial", "question": question,
-                 "fingerprint": HEX, "raw_sha256": "cd" * 32},
+                 "fingerprint": HEX, "raw_sha256": "cd" * 32, "settings": SETTINGS},
         "data": {
             "file": "data/demo.csv", "sha256": "ef" * 32, "format": "csv", "group": "grp",
             "levels": levels, "rows_read": 20, "blank_rows": [],
@@ -283,12 +300,23 @@ def test_decision_path_links_every_node_to_a_log_row(run_dir: Path) -> None:
     for svg in path_svgs:
         targets = re.findall(r'<a href="#(decision-\d+)">', svg)
         assert targets and set(targets) <= ids
-    decisions = [r for r in records if r["kind"] == "decision" and r["endpoint"] == "yield_g"]
     first = path_svgs[0]
-    # one highlighted node per decision of the endpoint, and the branches not taken
-    assert first.count('class="path-node"') == len(decisions)
-    assert "if passed: analyse this scale" in first
-    assert "if not significant: no difference shown" in first
+    decisions = [r for r in records if r["kind"] == "decision" and r["endpoint"] == "yield_g"]
+    # every decision of the endpoint is drawn and linked; warnings are not decisions
+    for r in decisions:
+        assert f'<a href="#decision-{r["seq"]}"><tspan>#{r["seq"]}</tspan></a>' in first
+    # the whole ladder of the plan: identity tried and failed, log10 taken, reciprocal muted
+    assert '1. as measured' in first and '2. log10' in first and '3. reciprocal' in first
+    rects = re.findall(r'<rect class="path-node path-(\w+)"[^>]*>\s*<text[^>]*>([^<]*)<', first)
+    state = {title: st for st, title in rects}
+    assert state["1. as measured"] == "tried"
+    assert state["2. log10"] == "taken"
+    assert state["3. reciprocal"] == "muted"
+    assert state["yes: Welch's ANOVA".replace("'", "&#39;")] == "muted"
+    assert state["no difference shown"] == "muted" and state["difference shown"] == "taken"
+    # the path is drawn as arrows between the taken boxes, and the climb along the ladder
+    assert first.count('class="edge-taken"') == sum(1 for st, _ in rects if st == "taken") - 1
+    assert first.count('class="edge-climb"') == 1
 
 
 def test_overview_links_to_each_endpoint(run_dir: Path) -> None:
@@ -326,9 +354,20 @@ def test_every_svg_is_valid_and_described(run_dir: Path) -> None:
     assert len(ids) == len(set(ids)), "ids repeat within the page"
 
 
-def test_figure_notes_name_missing_fields(run_dir: Path) -> None:
+def test_every_promised_figure_is_drawn(run_dir: Path) -> None:
     html = render_reports(run_dir, formats=("html",))[0].read_text(encoding="utf-8")
-    assert "results.json does not carry the residuals" in html
+    for n in (1, 2):
+        for key in ("estimates", "spread", "residuals", "comparisons"):
+            block = html.split(f'<figure id="endpoint-{n}-fig-{key}">')[1].split("</figure>")[0]
+            assert "<svg " in block and "<figcaption>" in block
+    assert "does not carry" not in html and "not drawn" not in html
+    # the individual values are drawn: one marker per value in matplotlib's point groups
+    estimates = html.split('<figure id="endpoint-1-fig-estimates">')[1].split("</figure>")[0]
+    root = ET.fromstring(_svgs(estimates)[0])
+    ns = "{http://www.w3.org/2000/svg}"
+    markers = sum(len(g.findall(f".//{ns}use")) for g in root.iter(f"{ns}g")
+                  if "PathCollection" in (g.get("id") or ""))
+    assert markers == 2 * 18  # 18 values on each of the two scales
 
 
 def test_halted_endpoint_renders(tmp_path: Path) -> None:
@@ -437,15 +476,48 @@ def test_view_path_text(run_dir: Path) -> None:
     assert view["deviations"][0]["reason"].startswith("The alpha was corrected")
 
 
-def test_ladder_settings_name_the_untried_rungs(tmp_path: Path) -> None:
-    # results.plan.settings is optional; when present the untried rungs are drawn
+def test_tree_without_settings_still_draws_every_decision(tmp_path: Path) -> None:
+    # a results file whose plan carries no settings: each record gets a box of its own step
     folder = write_run(tmp_path / "run", [make_endpoint("yield_g")])
     results, records = load_run(folder)
-    results["plan"]["settings"] = {"transform": {"policy": "ladder",
-                                                 "ladder": ["identity", "log10", "reciprocal"]}}
+    del results["plan"]["settings"]
     view = build_view(results, records)
-    alts = [row["alt"] for row in view["endpoints"][0]["layout"]["rows"] if row["alt"]]
-    assert "if failed: next rung (reciprocal)" in alts
+    nodes = view["endpoints"][0]["layout"]["nodes"]
+    held = {s for n in nodes for s in n["seqs"]}
+    decisions = {r["seq"] for r in records if r["kind"] == "decision" and r.get("endpoint")}
+    assert decisions <= held
+    assert all(n["link"] in {r["seq"] for r in records} for n in nodes if n["link"] is not None)
+
+
+def test_tree_of_a_box_cox_plan_mutes_the_powers_not_used(tmp_path: Path) -> None:
+    from planrunner.report.tree import plan_tree_layout
+
+    settings = dict(SETTINGS, transform={"policy": "box_cox", "lambda_bounds": [-2.0, 2.0],
+                                         "ci_level": 0.95, "rounding": "snap",
+                                         "snap_values": [-1.0, -0.5, 0.0, 0.5, 1.0],
+                                         "shift": "none"})
+    endpoint = make_endpoint("y", log=False)
+    endpoint["transform"].update(name="boxcox", **{"lambda": -0.5})
+    records = [
+        {"kind": "decision", "seq": 3, "stage": "describe", "outcome": "usable"},
+        {"kind": "decision", "seq": 4, "stage": "check_assumptions", "method": "levene_median",
+         "plan_ref": "variance_check.role", "outcome": "passed", "p": 0.12},
+        {"kind": "decision", "seq": 5, "stage": "transform", "method": "box_cox",
+         "plan_ref": "transform.rounding", "statistic": -0.28, "threshold": -0.5,
+         "outcome": "snapped"},
+        {"kind": "decision", "seq": 6, "stage": "transform", "method": "levene_median",
+         "plan_ref": "variance_check", "outcome": "passed", "p": 0.15},
+        {"kind": "decision", "seq": 7, "stage": "omnibus", "method": "classic",
+         "outcome": "significant", "p": 0.001},
+    ]
+    layout = plan_tree_layout(endpoint, records, settings)
+    by_title = {n["title"]: n for n in layout["nodes"]}
+    assert by_title["λ = -0.5"]["state"] == "taken" and by_title["λ = -0.5"]["seqs"] == [5, 6]
+    assert by_title["λ = -0.5"]["detail"] == "λ̂ -0.28 snapped"
+    for other in ("λ = -1", "λ = 0", "λ = 0.5", "λ = 1", "λ as estimated"):
+        assert by_title[other]["state"] == "muted" and by_title[other]["link"] == 5
+    assert by_title["checks reported only"]["seqs"] == [4]
+    assert by_title["no: keep the planned test"]["state"] == "taken"
 
 
 # --------------------------------------------------------------------------------------------
@@ -469,8 +541,7 @@ def test_example_plans_render_end_to_end(plan: Path, tmp_path: Path) -> None:
     results, records = load_run(out)
     for e in results["endpoints"]:
         assert e["endpoint"] in html
-        text = e["conclusion"]["text"]
-        assert text.replace("'", "&#39;") in html
+        assert str(escape(e["conclusion"]["text"])) in html
     for r in records:
         assert f'id="decision-{r["seq"]}"' in html
     assert md.splitlines()[0] == f"# {results['plan']['title']}".replace("_", "\\_")

@@ -18,6 +18,7 @@ import numpy as np
 import pytest
 
 from planrunner.api import run_plan
+from planrunner.report.figures import residuals_of
 from planrunner.report.results import (
     CAUTIONS,
     RESULTS_FORMAT,
@@ -299,3 +300,108 @@ def test_results_hold_no_timestamps_or_machine_paths(tmp_path):
     text = (tmp_path / "run" / "results.json").read_text(encoding="utf-8")
     assert str(tmp_path) not in text
     assert not re.search(r"\d{4}-\d{2}-\d{2}T\d{2}:\d{2}", text)
+
+
+# --------------------------------------------------------------------------------------------
+# what the report's figures read: values, residuals, the Box-Cox profile, the plan's settings
+
+
+def _run_doc(plan: Path, out: Path) -> dict:
+    run_plan(plan, out=out)
+    return json.loads((out / "results.json").read_text(encoding="utf-8"))
+
+
+def test_values_are_the_file_values_in_file_order(tmp_path):
+    doc = _run_doc(_write_study(tmp_path / "s"), tmp_path / "run")
+    groups = doc["endpoints"][0]["groups"]
+    # from CSV above: row 4 (alpha) is missing and dropped; '<0.5' becomes 0.5 * 0.5 = 0.25
+    assert [g["values"] for g in groups] == [
+        [10.1, 10.4, 10.2, 10.0], [11.0, 11.3, 0.25, 11.4, 11.1],
+        [10.6, 10.2, 10.9, 10.5, 10.7]]
+    assert all(g["analysis_values"] is None for g in groups)  # analysed as measured
+    assert all(g["ci_level"] == 0.95 for g in groups)
+    # the report's residuals: values minus their group mean (numpy as the reference)
+    residuals, scale = residuals_of(doc["endpoints"][0])
+    assert scale == "original"
+    expected = np.concatenate([np.array(g["values"]) - np.mean(g["values"]) for g in groups])
+    assert np.allclose(residuals, expected, rtol=0, atol=1e-12)
+    t = doc["endpoints"][0]["transform"]
+    assert t["lambda_estimate"] is None and t["lambda_ci"] is None and t["profile"] is None
+
+
+def test_analysis_values_and_residuals_on_a_fixed_log_scale(tmp_path):
+    doc = _run_doc(REPO / "plans" / "soil-remediation-metals.yaml", tmp_path / "run")
+    for e in doc["endpoints"]:
+        assert e["analysis_scale"] == "log10"
+        parts = []
+        for g in e["groups"]:
+            # reference: numpy.log10 of the values used
+            assert np.allclose(g["analysis_values"], np.log10(g["values"]), rtol=1e-15, atol=0)
+            assert len(g["values"]) == g["n"]
+            a = np.array(g["analysis_values"])
+            assert abs(np.mean(a) - g["analysis"]["mean"]) < 1e-12
+            parts.append(a - a.mean())
+        residuals, scale = residuals_of(e)
+        assert scale == "log10"
+        assert np.allclose(residuals, np.concatenate(parts), rtol=0, atol=1e-12)
+
+
+BOXCOX_PLAN = REPO / "plans" / "compost-heating-time-boxcox.yaml"
+
+
+def test_box_cox_profile_interval_and_estimate(tmp_path):
+    from scipy.stats import chi2
+
+    doc = _run_doc(BOXCOX_PLAN, tmp_path / "run")
+    e = doc["endpoints"][0]
+    t = e["transform"]
+    assert t["name"] == "boxcox" and t["lambda"] == -0.5  # snapped (see the decision log)
+    lam_hat, (lo, hi) = t["lambda_estimate"], t["lambda_ci"]
+    assert lo < lam_hat < hi and lo <= t["lambda"] <= hi
+    prof = t["profile"]
+    grid, ll = np.array(prof["lambda"]), np.array(prof["loglik"])
+    assert 3 <= grid.size <= 121 and grid[0] == -2.0 and grid[-1] == 2.0
+    assert np.all(np.diff(grid) > 0)
+    # the one-way Box-Cox log-likelihood written out with numpy (Box & Cox 1964, their
+    # equation for the maximised likelihood plus the Jacobian): an independent formula
+    y = [np.array(g["values"]) for g in e["groups"]]
+    n_total = sum(v.size for v in y)
+    log_sum = sum(np.log(v).sum() for v in y)
+
+    def loglik(lam: float) -> float:
+        z = [np.log(v) if lam == 0 else (v ** lam - 1) / lam for v in y]
+        ss = sum(((x - x.mean()) ** 2).sum() for x in z)
+        return (-0.5 * n_total * (math.log(2 * math.pi) + 1 + math.log(ss / n_total))
+                + (lam - 1) * log_sum)
+
+    assert all(abs(loglik(a) - b) < 1e-9 * abs(b) for a, b in zip(grid, ll))
+    assert abs(prof["loglik_max"] - loglik(lam_hat)) < 1e-9 * abs(prof["loglik_max"])
+    assert prof["loglik_max"] >= ll.max()
+    # reference: scipy.stats.chi2 quantile; the interval ends lie on the cut-off
+    assert abs(prof["cutoff"] - (prof["loglik_max"] - chi2.ppf(0.95, 1) / 2)) < 1e-9
+    for end in (lo, hi):
+        assert abs(loglik(end) - prof["cutoff"]) < 1e-6
+    # the analysis values are the Box-Cox values of the values used, with the lambda used
+    for g in e["groups"]:
+        v = np.array(g["values"])
+        assert np.allclose(g["analysis_values"], (v ** -0.5 - 1) / -0.5, rtol=1e-14, atol=0)
+
+
+def test_box_cox_results_are_byte_identical_on_rerun(tmp_path):
+    run_plan(BOXCOX_PLAN, out=tmp_path / "a")
+    run_plan(BOXCOX_PLAN, out=tmp_path / "b")
+    assert (tmp_path / "a" / "results.json").read_bytes() == \
+        (tmp_path / "b" / "results.json").read_bytes()
+
+
+def test_plan_settings_copy_the_resolved_plan(tmp_path):
+    import yaml
+
+    doc = _run_doc(REPO / "plans" / "hatchery-vibrio-counts.yaml", tmp_path / "run")
+    resolved = yaml.safe_load((tmp_path / "run" / "plan.resolved.yaml").read_text("utf-8"))
+    settings = doc["plan"]["settings"]
+    for key in ("transform", "variance_check", "normality_check", "comparisons", "outliers",
+                "omnibus", "when_variances_differ", "alpha", "compare"):
+        assert settings[key] == resolved[key], key
+    assert settings["degenerate_groups"] == resolved["data"]["degenerate_groups"]
+    assert settings["transform"]["ladder"] == ["identity", "sqrt", "log10"]
