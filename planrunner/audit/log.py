@@ -32,7 +32,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import math
 import os
 import re
 from dataclasses import dataclass, field
@@ -41,6 +40,7 @@ from typing import Any, Iterator, Mapping, Sequence
 
 from .._files import atomic_write_bytes
 from ..errors import PlanError, PlanrunnerError
+from .._json import to_plain
 
 __all__ = [
     "FINISH_STATUSES",
@@ -84,34 +84,20 @@ class AuditError(PlanrunnerError, ValueError):
 # --------------------------------------------------------------------------- canonical JSON
 
 
+def _refuse(problem: str, where: str, value: Any) -> AuditError:
+    if problem == "not_finite":
+        return AuditError(
+            f"{where} is {value!r}; the decision log holds finite numbers only. Record a "
+            "value that cannot be computed as null and say why in the reason"
+        )
+    if problem == "key":
+        return AuditError(f"{where} has a key {value!r} that is not a string")
+    return AuditError(f"{where} is a {type(value).__name__}, which the decision log cannot hold")
+
+
 def _plain(value: Any, where: str) -> Any:
     """Return ``value`` as plain JSON types; refuse NaN, infinity and unknown objects."""
-    if value is None or isinstance(value, (bool, str)):
-        return value
-    if isinstance(value, int):
-        return int(value)
-    if isinstance(value, float):
-        if not math.isfinite(value):
-            raise AuditError(
-                f"{where} is {value!r}; the decision log holds finite numbers only. Record a "
-                "value that cannot be computed as null and say why in the reason"
-            )
-        return float(value)
-    if isinstance(value, Mapping):
-        out: dict[str, Any] = {}
-        for key, item in value.items():
-            if not isinstance(key, str):
-                raise AuditError(f"{where} has a key {key!r} that is not a string")
-            out[key] = _plain(item, f"{where}.{key}")
-        return out
-    if isinstance(value, (list, tuple)):
-        return [_plain(item, f"{where}[{i}]") for i, item in enumerate(value)]
-    if isinstance(value, os.PathLike):
-        return os.fspath(value)
-    # numpy scalars and 0-d arrays, without importing numpy
-    if hasattr(value, "dtype") and getattr(value, "shape", None) == () and hasattr(value, "item"):
-        return _plain(value.item(), where)
-    raise AuditError(f"{where} is a {type(value).__name__}, which the decision log cannot hold")
+    return to_plain(value, where, _refuse)
 
 
 def canonical_json(value: Any) -> str:

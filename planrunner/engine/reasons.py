@@ -7,6 +7,8 @@ says the same thing the same way.
 
 from __future__ import annotations
 
+import numpy as np
+
 import math
 
 __all__ = [
@@ -83,7 +85,9 @@ def fmt_p(p: float | None) -> str:
 
 def scale_words(name: str, lmbda: float | None = None) -> str:
     """``"the log10 scale"``, ``"the Box-Cox scale with lambda = -0.5"``."""
-    if name == "boxcox":
+    if name.startswith("boxcox"):
+        if lmbda is None or not np.isfinite(lmbda):
+            return "the Box-Cox scale"
         return f"the Box-Cox scale with lambda = {fmt(lmbda)}"
     return _SCALE_WORDS.get(name, f"the {name} scale")
 

@@ -30,7 +30,7 @@ from ..stats.normality import shapiro_wilk
 from ..stats.summary import describe_groups, studentized_residuals
 from ..stats.transforms import get_transform
 from ..stats.variance import bartlett, fligner_killeen, levene
-from .context import ACTIVE, HALTED, REJECTED, CheckEntry, Context
+from .context import HALTED, REJECTED, CheckEntry, Context
 from .reasons import (
     CHECK_NAMES,
     COMPARISON_NAMES,
@@ -267,8 +267,7 @@ def _record_check(ctx: Context, rec: Any, local: np.ndarray, kind: str, res: dic
         actions = (lambda j, a=action: a)
 
     def reason(j: int) -> str:
-        scale = scale_words(str(scale_names[j]), None) if not str(scale_names[j]).startswith(
-            "boxcox") else str(scale_names[j])
+        scale = scale_words(str(scale_names[j]), ctx.out["tlambda"][local[j]])
         return f"{_check_sentence(ctx, kind, res, j, scale)}; {actions(j)}."
 
     rec.decide(stage=stage, plan_ref=ref + ".role" if role == "describe" else ref,
@@ -934,9 +933,11 @@ def omnibus(ctx: Context, rec: Any) -> Context:
     other = act[~changed & (tname != "identity") & (compared == "means")]
     if other.size:
         scl2 = out["tname"][other]
+        lam2 = out["tlambda"][other]
         rec.decide(stage="omnibus", plan_ref="compare", members=ctx.ids[other],
                    outcome="scale_changed", action="compare means on the transformed scale",
-                   reason=lambda j: (f"Means are compared on {scale_words(str(scl2[j]))}; "
+                   reason=lambda j: (f"Means are compared on "
+                                     f"{scale_words(str(scl2[j]), lam2[j])}; "
                                      "back-transformed they are not the original means."))
     for method, fn in (("classic", oneway_anova), ("welch", welch_anova),
                        ("kruskal_wallis", kruskal_wallis)):
@@ -964,11 +965,12 @@ def omnibus(ctx: Context, rec: Any) -> Context:
         refs = out["omni_ref"][sel]
         label = "F" if method != "kruskal_wallis" else "H"
         scl = out["tname"][sel]
+        lam = out["tlambda"][sel]
 
         def reason(j: int, stat=stat, p=p, sig=sig, df1=df1, df2=df2, refs=refs, scl=scl,
-                   method=method, label=label) -> str:
+                   lam=lam, method=method, label=label) -> str:
             why = "as planned" if refs[j] == "omnibus" else f"as directed by {refs[j]}"
-            on = "ranks" if method == "kruskal_wallis" else scale_words(str(scl[j]))
+            on = "ranks" if method == "kruskal_wallis" else scale_words(str(scl[j]), lam[j])
             df = fmt(df1[j]) if not np.isfinite(df2[j]) else f"{fmt(df1[j])}, {fmt(df2[j], 4)}"
             verdict = "significant" if sig[j] else "not significant"
             cmp = "<=" if sig[j] else ">"
@@ -1078,7 +1080,7 @@ def follow_ups(ctx: Context, rec: Any) -> Context:
     rec.decide(stage="follow_ups", plan_ref=ref, members=ctx.ids[do], method=c.method,
                statistic=nsig.astype(float), threshold=plan.alpha, outcome="performed",
                action=f"report {len(pairs)} comparisons",
-               reason=lambda j: (f"{name[0].upper()}{name[1:]} made because {why}: "
+               reason=lambda j: (f"{name[0].upper()}{name[1:]} comparisons made because {why}: "
                                  f"{int(nsig[j])} of {len(pairs)} comparisons significant at "
                                  f"alpha = {fmt(plan.alpha)} (adjusted p-values)."))
     _comparison_warnings(ctx, rec, do)

@@ -31,12 +31,11 @@ standard library is imported here.
 from __future__ import annotations
 
 import json
-import math
-import os
 from collections.abc import Mapping
 from typing import TYPE_CHECKING, Any
 
 from ..errors import PlanrunnerError
+from .._json import to_plain
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..data import CheckedData
@@ -79,35 +78,21 @@ class ResultsError(PlanrunnerError):
 # plain JSON values
 
 
+def _refuse(problem: str, where: str, value: Any) -> ResultsError:
+    if problem == "not_finite":
+        return ResultsError(
+            f"results.json would hold {value!r} at {where}; results carry finite numbers "
+            "only (a value that cannot be computed is null with a reason)"
+        )
+    if problem == "key":
+        return ResultsError(f"results.json would have a key {value!r} at {where} that is "
+                            "not text")
+    return ResultsError(f"results.json cannot hold a {type(value).__name__} at {where}")
+
+
 def _plain(value: Any, where: str) -> Any:
     """``value`` as plain JSON types; NaN, infinity and unknown objects raise ResultsError."""
-    if value is None or isinstance(value, (bool, str)):
-        return value
-    if isinstance(value, int):
-        return int(value)
-    if isinstance(value, float):
-        if not math.isfinite(value):
-            raise ResultsError(
-                f"results.json would hold {value!r} at {where}; results carry finite numbers "
-                "only (a value that cannot be computed is null with a reason)"
-            )
-        return float(value)
-    if isinstance(value, Mapping):
-        out: dict[str, Any] = {}
-        for key, item in value.items():
-            if not isinstance(key, str):
-                raise ResultsError(f"results.json would have a key {key!r} at {where} that is "
-                                   "not text")
-            out[key] = _plain(item, f"{where}.{key}")
-        return out
-    if isinstance(value, (list, tuple)):
-        return [_plain(item, f"{where}[{i}]") for i, item in enumerate(value)]
-    if isinstance(value, os.PathLike):
-        return os.fspath(value)
-    # numpy scalars and 0-d arrays, without importing numpy
-    if hasattr(value, "dtype") and getattr(value, "shape", None) == () and hasattr(value, "item"):
-        return _plain(value.item(), where)
-    raise ResultsError(f"results.json cannot hold a {type(value).__name__} at {where}")
+    return to_plain(value, where, _refuse)
 
 
 def results_bytes(results: Mapping[str, Any]) -> bytes:
