@@ -33,18 +33,7 @@ def html_environment() -> Any:
         lstrip_blocks=True,
         keep_trailing_newline=True,
     )
-    env.filters.update(
-        num=_r.fmt_num,
-        p=_r.fmt_p,
-        ci=_r.fmt_ci,
-        pct=_r.fmt_pct,
-        label=_r.label,
-        short=_r.short_label,
-        scale=_r.scale_label,
-        words=_r.outcome_words,
-        stage=_r.stage_label,
-        yesno=lambda v: "—" if v is None else ("yes" if v else "no"),
-    )
+    env.filters.update(_r.template_filters())
     return env
 
 

@@ -73,20 +73,7 @@ def markdown_environment() -> Any:
         lstrip_blocks=True,
         keep_trailing_newline=True,
     )
-    env.filters.update(
-        num=_r.fmt_num,
-        p=_r.fmt_p,
-        ci=_r.fmt_ci,
-        pct=_r.fmt_pct,
-        label=_r.label,
-        short=_r.short_label,
-        scale=_r.scale_label,
-        words=_r.outcome_words,
-        stage=_r.stage_label,
-        anchor=_anchor,
-        hex=_hex,
-        yesno=lambda v: "—" if v is None else ("yes" if v else "no"),
-    )
+    env.filters.update(_r.template_filters(), anchor=_anchor, hex=_hex)
     return env
 
 

@@ -549,3 +549,19 @@ def render_reports(run_dir: str | os.PathLike[str], *,
         written.append(atomic_write_text(folder / MARKDOWN_NAME,
                                          render_markdown(results, records)))
     return written
+
+
+def template_filters() -> dict[str, Any]:
+    """The Jinja2 filters both report formats share (numbers, p-values, labels)."""
+    return {
+        "num": fmt_num,
+        "p": fmt_p,
+        "ci": fmt_ci,
+        "pct": fmt_pct,
+        "label": label,
+        "short": short_label,
+        "scale": scale_label,
+        "words": outcome_words,
+        "stage": stage_label,
+        "yesno": lambda v: "—" if v is None else ("yes" if v else "no"),
+    }
